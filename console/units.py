@@ -1,0 +1,150 @@
+"""Unit-aware values at the edge: ``"475 km"``, ``"7.6 km/s"``, ``"51.6 deg"`` -> SI floats.
+
+Bare numbers take the field's default unit (km, km/s, degrees, kg, N, s).  pint is imported on
+first use so commands that need no units start fast.  pint parses with its own tokenizer; no
+text is ever evaluated as code.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+
+_NUMBER = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
+_NAME = r"(?:%|[A-Za-z_\u00b5\u00b0][A-Za-z0-9_\u00b5\u00b0]*)"
+_POWER = r"(?:\s*(?:\*\*|\^)\s*[+-]?\d{1,2})?"
+_UNIT = re.compile(rf"^{_NAME}{_POWER}(?:\s*(?:[*/]|\s)\s*{_NAME}{_POWER})*$")
+
+#: kind -> (pint dimensionality, SI unit, default unit for bare numbers, human name)
+KINDS = {
+    "length": ("[length]", "m", "km", "a length"),
+    "speed": ("[length] / [time]", "m/s", "km/s", "a speed"),
+    "angle": ("", "rad", "deg", "an angle"),
+    "mass": ("[mass]", "kg", "kg", "a mass"),
+    "force": ("[length] * [mass] / [time] ** 2", "N", "N", "a force"),
+    "time": ("[time]", "s", "s", "a duration"),
+    "mass_flow": ("[mass] / [time]", "kg/s", "kg/s", "a mass flow"),
+    "gravitational_parameter": ("[length] ** 3 / [time] ** 2", "m**3/s**2", "km**3/s**2",
+                                "a gravitational parameter"),
+    "rate": ("1 / [time]", "rad/s", "rad/s", "an angular rate"),
+    "dimensionless": ("", "", "", "a plain number"),
+    "ratio": ("", "", "", "a ratio"),
+}
+
+MAX_TEXT = 200
+
+
+@lru_cache(maxsize=1)
+def registry():
+    import pint
+
+    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    return ureg
+
+
+def parse_value(value, kind: str, field: str, *, allow_negative: bool = False,
+                allow_zero: bool = True) -> float:
+    """SI float from a TOML value (number or unit string) for a field of the given kind.
+
+    Raises
+    ------
+    ValueError
+        Naming ``field``: wrong type, wrong dimension, unparseable text, NaN/inf, and (unless
+        allowed) negative or zero values.
+    """
+    dim, si, default, human = KINDS[kind]
+    if isinstance(value, bool):
+        raise ValueError(f"{field}: expected {human}, got a true/false value")
+    if isinstance(value, (int, float)):
+        number = float(value)
+        if not math.isfinite(number):
+            raise ValueError(f"{field}: {value!r} is not a finite number")
+        result = _to_si(number, default, si, field) if default else number
+    elif isinstance(value, str):
+        result = _parse_text(value, kind, field)
+    else:
+        raise ValueError(f"{field}: expected {human} (a number or a string such as "
+                         f"'10 {default or ''}'), got {type(value).__name__}")
+    if not math.isfinite(result):
+        raise ValueError(f"{field}: {value!r} is not finite")
+    if not allow_negative and result < 0.0:
+        raise ValueError(f"{field}: {value!r} must not be negative")
+    if not allow_zero and result == 0.0:
+        raise ValueError(f"{field}: {value!r} must be greater than zero")
+    return result
+
+
+def _to_si(number: float, unit: str, si: str, field: str) -> float:
+    if unit == si:
+        return number
+    ureg = registry()
+    return float(ureg.Quantity(number, unit).to(si).magnitude)
+
+
+def _parse_text(text: str, kind: str, field: str) -> float:
+    dim, si, default, human = KINDS[kind]
+    s = text.strip()
+    if not s:
+        raise ValueError(f"{field}: empty value, expected {human}")
+    if len(s) > MAX_TEXT:
+        raise ValueError(f"{field}: value is too long to be {human}")
+    try:
+        number = float(s)
+    except ValueError:
+        number = None
+    if number is not None:
+        if not math.isfinite(number):
+            raise ValueError(f"{field}: {text!r} is not a finite number")
+        return _to_si(number, default, si, field) if default else number
+    m = _NUMBER.match(s)
+    if not m or not m.group(2):
+        raise ValueError(f"{field}: cannot read {text!r} as {human}: write a number and a unit, "
+                         f"e.g. '10 {default or 'm'}'")
+    unit_text = m.group(2)
+    if not _UNIT.match(unit_text):
+        raise ValueError(f"{field}: {unit_text!r} in {text!r} is not a unit")
+    ureg = registry()
+    try:
+        q = ureg.Quantity(float(m.group(1)), ureg.parse_units(unit_text))
+    except Exception as exc:  # pint raises several error types for bad text
+        raise ValueError(f"{field}: cannot read {text!r} as {human} ({_short(exc)})") from None
+    if not hasattr(q, "dimensionality"):
+        raise ValueError(f"{field}: cannot read {text!r} as {human}")
+    try:
+        if kind in ("dimensionless", "ratio"):
+            if not q.dimensionless:
+                raise ValueError
+            magnitude = q.to("").magnitude
+        elif kind == "angle":
+            magnitude = q.to("rad").magnitude if q.dimensionless else None
+            if magnitude is None:
+                raise ValueError
+            if q.unitless:
+                magnitude = math.radians(q.magnitude)
+        else:
+            magnitude = q.to(si).magnitude
+    except Exception:
+        raise ValueError(f"{field}: {text!r} is not {human} (unit {str(q.units) or 'none'})") from None
+    try:
+        result = float(magnitude)
+    except (TypeError, ValueError, OverflowError):
+        raise ValueError(f"{field}: cannot read {text!r} as {human}") from None
+    if not math.isfinite(result):
+        raise ValueError(f"{field}: {text!r} is not finite")
+    return result
+
+
+def _short(exc: Exception) -> str:
+    msg = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    return msg[:80]
+
+
+def quantity_text(value_si: float, kind: str, unit: str | None = None, digits: int = 3) -> str:
+    """Format an SI value in the kind's display unit, e.g. ``"475.000 km"``."""
+    dim, si, default, _ = KINDS[kind]
+    unit = unit or default
+    if kind == "angle" and unit == "deg":
+        return f"{math.degrees(value_si):.{digits}f} deg"
+    shown = _to_si(1.0, unit, si, "") if unit else 1.0
+    return f"{value_si / shown:.{digits}f} {unit}".rstrip()

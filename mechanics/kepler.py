@@ -1,0 +1,264 @@
+"""Anomalies, Kepler's equation and two-body propagation.
+
+All functions are vectorised over numpy arrays (broadcasting their arguments) and also take
+plain floats.
+
+References
+----------
+Vallado, D. A., *Fundamentals of Astrodynamics and Applications*, 4th ed., 2013, sec. 2.2-2.3
+(anomaly relations, eqs. 2-9 to 2-14; Kepler's equation, Algorithm 2; hyperbolic form,
+Algorithm 4).
+Mikkola, S., "A cubic approximation for Kepler's equation", Celestial Mechanics 40 (1987)
+329-334 (the starting value used by :func:`solve_kepler`).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .elements import Elements, elements_to_rv, rv_to_elements
+
+TWO_PI = 2.0 * math.pi
+
+#: Largest |E - e sin E - M| accepted from the elliptic solver, rad.
+KEPLER_RESIDUAL_RAD = 1e-12
+
+
+def _out(x):
+    x = np.asarray(x, dtype=float)
+    return float(x) if x.ndim == 0 else x
+
+
+def wrap_2pi(angle_rad):
+    """Angle wrapped into [0, 2 pi)."""
+    return _out(np.mod(angle_rad, TWO_PI))
+
+
+def wrap_pi(angle_rad):
+    """Angle wrapped into [-pi, pi)."""
+    return _out(np.mod(np.asarray(angle_rad, dtype=float) + math.pi, TWO_PI) - math.pi)
+
+
+def true_to_eccentric(nu_rad, e):
+    """Eccentric anomaly E (rad) from true anomaly for 0 <= e < 1 (Vallado eq. 2-9), same turn."""
+    nu = np.asarray(nu_rad, dtype=float)
+    e = np.asarray(e, dtype=float)
+    half = np.arctan2(np.sqrt(1.0 - e) * np.sin(nu / 2.0), np.sqrt(1.0 + e) * np.cos(nu / 2.0))
+    return _out(2.0 * half)
+
+
+def eccentric_to_true(E_rad, e):
+    """True anomaly (rad) from eccentric anomaly for 0 <= e < 1 (Vallado eq. 2-10), same turn."""
+    E = np.asarray(E_rad, dtype=float)
+    e = np.asarray(e, dtype=float)
+    half = np.arctan2(np.sqrt(1.0 + e) * np.sin(E / 2.0), np.sqrt(1.0 - e) * np.cos(E / 2.0))
+    return _out(2.0 * half)
+
+
+def true_to_hyperbolic(nu_rad, e):
+    """Hyperbolic anomaly H from true anomaly for e > 1 (Vallado eq. 2-35)."""
+    nu = np.asarray(nu_rad, dtype=float)
+    e = np.asarray(e, dtype=float)
+    return _out(2.0 * np.arctanh(np.sqrt((e - 1.0) / (e + 1.0)) * np.tan(nu / 2.0)))
+
+
+def hyperbolic_to_true(H, e):
+    """True anomaly (rad, in (-pi, pi)) from hyperbolic anomaly for e > 1."""
+    H = np.asarray(H, dtype=float)
+    e = np.asarray(e, dtype=float)
+    return _out(2.0 * np.arctan(np.sqrt((e + 1.0) / (e - 1.0)) * np.tanh(H / 2.0)))
+
+
+def solve_kepler(M_rad, e):
+    """Eccentric anomaly E from Kepler's equation M = E - e sin E, for 0 <= e < 1.
+
+    Mikkola's cubic starter (accurate to about 1e-3 rad for every e < 1) followed by a fixed
+    number of Halley steps, then a residual check; any element still above
+    ``KEPLER_RESIDUAL_RAD`` (none has been seen) is finished by safeguarded Newton steps.
+
+    Parameters
+    ----------
+    M_rad : float or ndarray
+        Mean anomaly, rad (any turn).
+    e : float or ndarray
+        Eccentricity, 0 <= e < 1, broadcastable against ``M_rad``.
+
+    Returns
+    -------
+    float or ndarray
+        E in the same turn as M (E - M = e sin E), rad.
+
+    Raises
+    ------
+    ValueError
+        If any e is outside [0, 1) or M is not finite.
+
+    References
+    ----------
+    Mikkola (1987), eqs. 7-9 (starter); Vallado (2013), Algorithm 2 (the equation itself).
+    """
+    M = np.asarray(M_rad, dtype=float)
+    e = np.asarray(e, dtype=float)
+    if np.any(~np.isfinite(M)):
+        raise ValueError("mean anomaly is not finite")
+    if np.any((e < 0.0) | (e >= 1.0) | ~np.isfinite(e)):
+        raise ValueError("Kepler's elliptic equation needs 0 <= e < 1")
+    M, e = np.broadcast_arrays(M, e)
+    turns = np.round(M / TWO_PI)
+    m = M - turns * TWO_PI  # in [-pi, pi]
+    # Mikkola's starter.
+    denom = 4.0 * e + 0.5
+    alpha = (1.0 - e) / denom
+    beta = 0.5 * m / denom
+    z = np.cbrt(beta + np.copysign(np.sqrt(beta * beta + alpha ** 3), beta))
+    s = np.where(z != 0.0, z - alpha / np.where(z != 0.0, z, 1.0), 0.0)
+    s = s - 0.078 * s ** 5 / (1.0 + e)
+    E = m + e * (3.0 * s - 4.0 * s ** 3)
+    for _ in range(3):
+        se, ce = np.sin(E), np.cos(E)
+        f = E - e * se - m
+        f1 = 1.0 - e * ce
+        E = E - f / (f1 - 0.5 * f * e * se / f1)
+    res = np.abs(E - e * np.sin(E) - m)
+    bad = res > KEPLER_RESIDUAL_RAD
+    if np.any(bad):
+        E = _kepler_newton_fallback(E, e, m, bad)
+    return _out(E + turns * TWO_PI)
+
+
+def _kepler_newton_fallback(E, e, m, bad):
+    """Bracketed Newton for the (rare) elements the fixed iteration left unconverged."""
+    E = E.copy()
+    idx = np.nonzero(bad)
+    mb, eb = m[idx], e[idx]
+    lo = np.where(mb >= 0.0, 0.0, -math.pi)
+    hi = np.where(mb >= 0.0, math.pi, 0.0)
+    x = np.clip(E[idx], lo, hi)
+    for _ in range(100):
+        f = x - eb * np.sin(x) - mb
+        lo = np.where(f < 0.0, x, lo)
+        hi = np.where(f > 0.0, x, hi)
+        step = f / (1.0 - eb * np.cos(x))
+        x_new = x - step
+        outside = (x_new <= lo) | (x_new >= hi)
+        x = np.where(outside, 0.5 * (lo + hi), x_new)
+        if np.all(np.abs(x - eb * np.sin(x) - mb) <= KEPLER_RESIDUAL_RAD):
+            break
+    E[idx] = x
+    return E
+
+
+def solve_kepler_hyperbolic(M_rad, e):
+    """Hyperbolic anomaly H from M = e sinh H - H, for e > 1 (Vallado Algorithm 4).
+
+    Newton's method from H0 = asinh(M / e) (or a logarithmic start for large M); the function
+    is convex for H > 0, so after the first step the iterates descend monotonically.
+    """
+    M = np.asarray(M_rad, dtype=float)
+    e = np.asarray(e, dtype=float)
+    if np.any((e <= 1.0) | ~np.isfinite(e)):
+        raise ValueError("Kepler's hyperbolic equation needs e > 1")
+    M, e = np.broadcast_arrays(M, e)
+    sign = np.sign(M)
+    Ma = np.abs(M)
+    H = np.where(Ma < 6.0 * e, np.arcsinh(Ma / e), np.log(2.0 * Ma / e + 1.8))
+    for _ in range(60):
+        f = e * np.sinh(H) - H - Ma
+        step = f / (e * np.cosh(H) - 1.0)
+        H = H - step
+        if np.all(np.abs(step) <= 1e-14 * np.maximum(1.0, np.abs(H))):
+            break
+    return _out(sign * H)
+
+
+def mean_motion(a_m, mu_m3_s2):
+    """Mean motion sqrt(mu / |a|^3), rad/s."""
+    a = np.abs(np.asarray(a_m, dtype=float))
+    return _out(np.sqrt(mu_m3_s2 / a ** 3))
+
+
+def period(a_m, mu_m3_s2):
+    """Orbital period 2 pi sqrt(a^3 / mu), s.
+
+    Raises
+    ------
+    ValueError
+        For an open orbit (a <= 0): a hyperbola has no period.
+    """
+    a = np.asarray(a_m, dtype=float)
+    if np.any(a <= 0.0):
+        raise ValueError("orbit is hyperbolic: no period")
+    return _out(TWO_PI * np.sqrt(a ** 3 / mu_m3_s2))
+
+
+def true_to_mean(nu_rad, e):
+    """Mean anomaly (rad) from true anomaly: [0, 2 pi) for e < 1, signed for e > 1."""
+    e_arr = np.asarray(e, dtype=float)
+    nu = np.asarray(nu_rad, dtype=float)
+    if np.all(e_arr < 1.0):
+        E = true_to_eccentric(nu, e_arr)
+        return wrap_2pi(np.asarray(E) - e_arr * np.sin(E))
+    if np.all(e_arr > 1.0):
+        H = np.asarray(true_to_hyperbolic(wrap_pi(nu), e_arr))
+        return _out(e_arr * np.sinh(H) - H)
+    raise ValueError("true_to_mean takes all-elliptic or all-hyperbolic input")
+
+
+def mean_to_true(M_rad, e):
+    """True anomaly (rad, [0, 2 pi)) from mean anomaly, elliptic or hyperbolic."""
+    e_arr = np.asarray(e, dtype=float)
+    if np.all(e_arr < 1.0):
+        return wrap_2pi(eccentric_to_true(solve_kepler(M_rad, e_arr), e_arr))
+    if np.all(e_arr > 1.0):
+        return wrap_2pi(hyperbolic_to_true(solve_kepler_hyperbolic(M_rad, e_arr), e_arr))
+    raise ValueError("mean_to_true takes all-elliptic or all-hyperbolic input")
+
+
+def propagate_elements_kepler(el: Elements, dt_s, mu_m3_s2: float) -> Elements:
+    """Advance elements along an unperturbed conic by ``dt_s`` seconds (may be negative)."""
+    M0 = np.asarray(true_to_mean(el.nu_rad, el.e))
+    n = np.asarray(mean_motion(el.a_m, mu_m3_s2))
+    M = M0 + n * np.asarray(dt_s, dtype=float)
+    e = np.asarray(el.e, dtype=float)
+    if np.all(e < 1.0):
+        M = np.mod(M, TWO_PI)
+    nu = mean_to_true(M, e)
+    return Elements(el.a_m, el.e, el.i_rad, el.raan_rad, el.argp_rad, nu)
+
+
+def propagate_kepler(r_m, v_m_s, dt_s, mu_m3_s2: float):
+    """Two-body propagation of Cartesian states.
+
+    Parameters
+    ----------
+    r_m, v_m_s : array_like, shape (..., 3)
+        Initial position (m) and velocity (m/s).
+    dt_s : float or array_like, shape (...)
+        Time span, s (negative to go back), broadcast against the states.
+    mu_m3_s2 : float
+        Gravitational parameter, m^3/s^2.
+
+    Returns
+    -------
+    r_m, v_m_s : ndarray, shape (..., 3)
+
+    References
+    ----------
+    Vallado (2013), sec. 2.3, propagation through the mean anomaly (Algorithm 7 does the same
+    with universal variables).
+    """
+    el = rv_to_elements(r_m, v_m_s, mu_m3_s2)
+    return elements_to_rv(propagate_elements_kepler(el, dt_s, mu_m3_s2), mu_m3_s2)
+
+
+def time_to_anomaly(el: Elements, nu_target_rad, mu_m3_s2: float):
+    """Time (s, >= 0) until the true anomaly next equals ``nu_target_rad`` on a closed orbit."""
+    e = np.asarray(el.e, dtype=float)
+    if np.any(e >= 1.0):
+        raise ValueError("orbit is hyperbolic: it passes each anomaly at most once")
+    M_now = np.asarray(true_to_mean(el.nu_rad, e))
+    M_target = np.asarray(true_to_mean(nu_target_rad, e))
+    n = np.asarray(mean_motion(el.a_m, mu_m3_s2))
+    return _out(np.mod(M_target - M_now, TWO_PI) / n)

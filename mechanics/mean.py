@@ -1,0 +1,218 @@
+"""Orbit-averaged (mean) elements and apsis timing.
+
+Under J2 the osculating semi-major axis of a low orbit swings by about 10 km within one
+revolution and the osculating eccentricity vector by ~1e-3, so targets and "did we get there"
+checks use orbit-averaged values.  burndesk's definition (documented in DEVELOPERS.md):
+
+* fly the force model for one revolution of the mean argument of latitude lambda = argp + M
+  (window T = 2 pi / lambda_dot) and take ``MEAN_SAMPLES`` equally spaced samples in time;
+* mean a = time average of the osculating a;
+* mean orbit normal = time average of the osculating unit angular-momentum vector, giving the
+  mean i and RAAN; mean eccentricity vector = time average of the osculating eccentricity
+  vector, resolved in the mean orbit plane, giving mean e and argp;
+* mean lambda at the start = time average of (osculating lambda - lambda_dot t);
+* angles drifting secularly (RAAN, argp) are taken back from mid-window to the start with the
+  first-order J2 rates.
+
+Equally spaced samples over one period integrate the short-period terms (periodic in the
+argument of latitude) to zero with spectral accuracy.  Under ``"two-body"`` the osculating
+elements are the mean elements.
+
+References
+----------
+Vallado (2013), sec. 9.6 (secular rates) and sec. 9.7 (mean versus osculating elements).
+Trefethen, L. N., Weideman, J. A. C., "The exponentially convergent trapezoidal rule", SIAM
+Review 56 (2014) 385-458 (rectangle rule on periodic integrands).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .bodies import Body, check_model
+from .constants import CIRCULAR_E, EQUATORIAL_I_RAD
+from .elements import Elements, rv_to_elements
+from .j2 import secular_rates
+from .kepler import TWO_PI, mean_motion, mean_to_true, true_to_mean, wrap_2pi, wrap_pi
+
+#: Samples per revolution used for the time averages.
+MEAN_SAMPLES = 64
+
+
+@dataclass(frozen=True)
+class MeanOrbit:
+    """Mean elements at an instant plus their secular rates.
+
+    Attributes
+    ----------
+    a_m, e, i_rad, raan_rad, argp_rad : float
+        Mean elements (SI).  ``argp_rad`` is 0 on a circular orbit (e < CIRCULAR_E).
+    lam_rad : float
+        Mean argument of latitude lambda = argp + M, rad, in [0, 2 pi).
+    raan_dot, argp_dot, lam_dot : float
+        Secular rates, rad/s.
+    """
+
+    a_m: float
+    e: float
+    i_rad: float
+    raan_rad: float
+    argp_rad: float
+    lam_rad: float
+    raan_dot: float
+    argp_dot: float
+    lam_dot: float
+
+    @property
+    def periapsis_radius_m(self) -> float:
+        return self.a_m * (1.0 - self.e)
+
+    @property
+    def apoapsis_radius_m(self) -> float:
+        return self.a_m * (1.0 + self.e)
+
+    @property
+    def mean_anomaly_rad(self) -> float:
+        return float(np.mod(self.lam_rad - self.argp_rad, TWO_PI))
+
+    @property
+    def anomalistic_period_s(self) -> float:
+        """Time between periapsis passages, s."""
+        return TWO_PI / (self.lam_dot - self.argp_dot)
+
+    @property
+    def nodal_period_s(self) -> float:
+        """Time between passages of the same argument of latitude (draconic period), s."""
+        return TWO_PI / self.lam_dot
+
+    @property
+    def circular(self) -> bool:
+        return self.e < CIRCULAR_E
+
+    def time_to_apsis(self, which: str) -> float:
+        """Time (s, >= 0) to the next mean periapsis (``which="periapsis"``) or apoapsis.
+
+        Raises
+        ------
+        ValueError
+            On a circular orbit, which has no apsides.
+        """
+        if self.circular:
+            raise ValueError("orbit is circular: no periapsis or apoapsis")
+        target = {"periapsis": 0.0, "apoapsis": math.pi}[which]
+        return float(np.mod(target - self.mean_anomaly_rad, TWO_PI)) / (self.lam_dot - self.argp_dot)
+
+    def time_to_arglat(self, u_rad: float) -> float:
+        """Time (s, >= 0) until the mean argument of latitude lambda next equals ``u_rad``."""
+        return float(np.mod(u_rad - self.lam_rad, TWO_PI)) / self.lam_dot
+
+    def advanced(self, dt_s: float) -> "MeanOrbit":
+        """The mean orbit ``dt_s`` seconds later (secular drift only)."""
+        return MeanOrbit(
+            self.a_m, self.e, self.i_rad,
+            float(np.mod(self.raan_rad + self.raan_dot * dt_s, TWO_PI)),
+            float(np.mod(self.argp_rad + self.argp_dot * dt_s, TWO_PI)),
+            float(np.mod(self.lam_rad + self.lam_dot * dt_s, TWO_PI)),
+            self.raan_dot, self.argp_dot, self.lam_dot,
+        )
+
+    def elements(self) -> Elements:
+        """The mean elements as an :class:`Elements` set (true anomaly from the mean anomaly)."""
+        nu = mean_to_true(self.mean_anomaly_rad, self.e)
+        return Elements(self.a_m, self.e, self.i_rad, self.raan_rad, self.argp_rad, nu)
+
+
+def _lambda(el: Elements):
+    """Osculating mean argument of latitude argp + M (rad), elliptic elements."""
+    return np.mod(np.asarray(el.argp_rad) + np.asarray(true_to_mean(el.nu_rad, el.e)), TWO_PI)
+
+
+def mean_orbit(r_m, v_m_s, body: Body, model: str) -> MeanOrbit:
+    """Mean orbit of an osculating Cartesian state under ``model``.
+
+    Parameters
+    ----------
+    r_m, v_m_s : array_like, shape (3,)
+        Osculating position (m) and velocity (m/s) in the inertial frame.
+    body : Body
+    model : str
+        ``"two-body"`` (osculating = mean) or ``"two-body+J2"`` (orbit-averaged, see module).
+
+    Raises
+    ------
+    ValueError
+        For an open orbit ("orbit is hyperbolic: no mean elements") or one that hits the body.
+    """
+    check_model(model, body)
+    r = np.asarray(r_m, dtype=float)
+    v = np.asarray(v_m_s, dtype=float)
+    osc = rv_to_elements(r, v, body.mu_m3_s2)
+    if osc.e >= 1.0:
+        raise ValueError("orbit is hyperbolic: no mean elements, no apoapsis or period")
+    if model == "two-body":
+        n = float(mean_motion(osc.a_m, body.mu_m3_s2))
+        return MeanOrbit(osc.a_m, osc.e, osc.i_rad, osc.raan_rad, osc.argp_rad,
+                         float(_lambda(osc)), 0.0, 0.0, n)
+    if osc.periapsis_radius_m <= body.radius_m:
+        raise ValueError("orbit intersects the body: periapsis is below the surface")
+    from .flight import fly
+
+    _, _, lam_dot0 = _rates(osc.a_m, osc.e, osc.i_rad, body)
+    window0 = TWO_PI / lam_dot0
+    _, sol = fly(np.concatenate([r, v, [1.0]]), 1.02 * window0, body, model, dense=True)
+    first = _average(sol, window0, lam_dot0, body)
+    _, _, lam_dot1 = _rates(first.a_m, first.e, first.i_rad, body)
+    return _average(sol, TWO_PI / lam_dot1, lam_dot1, body)
+
+
+def _rates(a_m, e, i_rad, body):
+    """RAAN, argp and lambda rates; on an equatorial orbit RAAN is held at 0 and argp (the
+    longitude of periapsis, measured in the direction of motion) takes the node's turn too."""
+    raan_dot, argp_dot, m_dot = secular_rates(a_m, e, i_rad, body)
+    if i_rad < EQUATORIAL_I_RAD or i_rad > math.pi - EQUATORIAL_I_RAD:
+        argp_dot += math.cos(i_rad) * raan_dot
+        raan_dot = 0.0
+    return raan_dot, argp_dot, argp_dot + m_dot
+
+
+def _average(sol, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
+    t = np.arange(MEAN_SAMPLES) * (window_s / MEAN_SAMPLES)
+    y = sol(t)
+    r = y[:3].T
+    v = y[3:6].T
+    osc = rv_to_elements(r, v, body.mu_m3_s2)
+    a = float(np.mean(osc.a_m))
+    h = np.cross(r, v)
+    h_hat = np.mean(h / np.linalg.norm(h, axis=1)[:, None], axis=0)
+    h_hat /= np.linalg.norm(h_hat)
+    i = math.atan2(math.hypot(h_hat[0], h_hat[1]), h_hat[2])
+    equatorial = i < EQUATORIAL_I_RAD or i > math.pi - EQUATORIAL_I_RAD
+    if equatorial:
+        n_hat = np.array([1.0, 0.0, 0.0])
+        raan_mid = 0.0
+    else:
+        n_hat = np.array([-h_hat[1], h_hat[0], 0.0])
+        n_hat /= np.linalg.norm(n_hat)
+        raan_mid = math.atan2(n_hat[1], n_hat[0])
+    rmag = np.linalg.norm(r, axis=1)
+    e_vec = ((np.sum(v * v, axis=1) - body.mu_m3_s2 / rmag)[:, None] * r
+             - np.sum(r * v, axis=1)[:, None] * v) / body.mu_m3_s2
+    e_mean = np.mean(e_vec, axis=0)
+    m_hat = np.cross(h_hat, n_hat)
+    ex, ey = float(e_mean @ n_hat), float(e_mean @ m_hat)
+    e = math.hypot(ex, ey)
+    circular = e < CIRCULAR_E
+    argp_mid = 0.0 if circular else math.atan2(ey, ex)
+    lam_osc = _lambda(osc)
+    ref = float(lam_osc[0])
+    dev = np.asarray(wrap_pi(lam_osc - lam_dot * t - ref))
+    lam0 = ref + float(np.mean(dev))
+    raan_dot, argp_dot, _ = _rates(a, e, i, body)
+    half = 0.5 * window_s
+    raan0 = 0.0 if equatorial else raan_mid - raan_dot * half
+    argp0 = 0.0 if circular else argp_mid - argp_dot * half
+    return MeanOrbit(a, e, i, wrap_2pi(raan0), wrap_2pi(argp0), wrap_2pi(lam0),
+                     raan_dot, argp_dot, lam_dot)
