@@ -37,6 +37,18 @@ def cmd_orbit(args) -> int:
     return EXIT_OK
 
 
+def cmd_plan(args) -> int:
+    from mechanics.planner import plan_campaign
+
+    from .report import dumps, plan_json, plan_text
+    from .scenario_file import load_scenario
+
+    sc = load_scenario(args.scenario)
+    plan = plan_campaign(sc)
+    print(dumps(plan_json(plan, sc)) if args.json else plan_text(plan, sc))
+    return EXIT_OK if plan.feasible else EXIT_INFEASIBLE
+
+
 def cmd_default(args) -> int:
     args.scenario = _demo_scenario()
     args.json = False
@@ -57,6 +69,11 @@ def build_parser() -> argparse.ArgumentParser:
     o.add_argument("scenario", help="scenario file (TOML)")
     o.add_argument("--json", action="store_true", help="print JSON instead of text")
     o.set_defaults(func=cmd_orbit)
+
+    pl = sub.add_parser("plan", help="plan the burn queue of a scenario")
+    pl.add_argument("scenario", help="scenario file (TOML) with a vehicle and a [target]")
+    pl.add_argument("--json", action="store_true", help="print JSON instead of the table")
+    pl.set_defaults(func=cmd_plan)
     return p
 
 

@@ -92,3 +92,137 @@ def orbit_text(summary, scenario_name: str | None = None) -> str:
 
 def dumps(doc: dict) -> str:
     return json.dumps(doc, indent=2, allow_nan=False)
+
+
+CAUTIONS = (
+    "Not flight-certified: every plan needs an independent check before upload.",
+    "Screen the planned burns and the resulting orbits for conjunctions with catalogued objects "
+    "before upload.",
+    "Follow your operator's procedures and your licensing authority's rules, including disposal rules.",
+)
+
+
+def _attitude(b) -> dict:
+    if b.attitude_mode == "inertial":
+        return {"mode": "inertial", "direction": [round(c, 12) for c in b.direction]}
+    return {"mode": "tracking", "sense": "prograde" if b.sense > 0 else "retrograde"}
+
+
+def burn_json(b, radius_m: float) -> dict:
+    """One burn of the ``plan --json`` document."""
+    return {
+        "index": b.index,
+        "leg": b.leg + 1,
+        "apsis": b.apsis,
+        "apsis_time": format_utc(b.apsis_time_s),
+        "ignition": format_utc(b.ignition_s),
+        "cutoff": format_utc(b.cutoff_s),
+        "duration_s": b.duration_s,
+        "dv_mps": b.dv_m_s,
+        "impulsive_dv_mps": b.impulsive_dv_m_s,
+        "finite_loss_mps": b.finite_loss_m_s,
+        "propellant_kg": b.propellant_kg,
+        "mass_before_kg": b.mass_before_kg,
+        "mass_after_kg": b.mass_after_kg,
+        "thrust_N": b.thrust_n,
+        "mdot_kg_s": b.mdot_kg_s,
+        "attitude": _attitude(b),
+        "arc_deg": math.degrees(b.arc_rad),
+        "centring": {
+            "rule": "half-dv",
+            "ignition_half_duration": format_utc(b.ignition_half_duration_s),
+            "half_dv_earlier_by_s": b.ignition_half_duration_s - b.ignition_s,
+        },
+        "goal_alt_km": (b.goal_radius_m - radius_m) / 1e3,
+        "after": {
+            "periapsis_alt_km": (b.after_periapsis_radius_m - radius_m) / 1e3,
+            "apoapsis_alt_km": (b.after_apoapsis_radius_m - radius_m) / 1e3,
+        },
+    }
+
+
+def plan_json(plan, scenario=None) -> dict:
+    """The ``burndesk plan --json`` document (see docs/plan.schema.json)."""
+    R = plan.body.radius_m
+    body = plan.body
+    doc = {
+        "feasible": plan.feasible,
+        "model": plan.model,
+        "epoch": format_utc(plan.epoch_s),
+        "body": {"name": body.name, "mu_m3_s2": body.mu_m3_s2, "radius_m": body.radius_m, "j2": body.j2},
+        "initial_state": {"r_m": list(plan.r_m), "v_mps": list(plan.v_m_s), "mass_kg": plan.mass_kg},
+        "apsides_kind": "mean" if plan.model == "two-body+J2" else "osculating",
+        "thrust_factor": plan.thrust_factor,
+        "burns": [burn_json(b, R) for b in plan.burns],
+        "totals": {
+            "dv_mps": plan.total_dv_m_s,
+            "impulsive_dv_mps": plan.total_impulsive_dv_m_s,
+            "finite_loss_mps": plan.total_dv_m_s - plan.total_impulsive_dv_m_s,
+            "propellant_kg": plan.total_propellant_kg,
+            "duration_s": plan.total_duration_s,
+        },
+        "final": {
+            "periapsis_alt_km": (plan.final_periapsis_radius_m - R) / 1e3,
+            "apoapsis_alt_km": (plan.final_apoapsis_radius_m - R) / 1e3,
+        },
+        "propellant": {
+            "loaded_kg": plan.loaded_kg,
+            "usable_kg": plan.usable_kg,
+            "unusable_kg": plan.unusable_kg,
+            "reserve_kg": plan.reserve_kg,
+            "after_plan_kg": plan.after_plan_kg,
+            "margin_kg": plan.margin_kg,
+            "dv_remaining_mps": plan.dv_remaining_m_s,
+        },
+        "warnings": list(plan.warnings),
+        "cautions": list(CAUTIONS),
+    }
+    if scenario is not None:
+        doc["scenario"] = scenario.name
+        if scenario.vehicle is not None:
+            v = scenario.vehicle
+            doc["vehicle"] = {"name": v.name, "thrust_N": v.thrust_n, "mdot_kg_s": v.mdot_kg_s,
+                              "isp_s": v.isp_s, "dry_mass_kg": v.dry_mass_kg}
+    return doc
+
+
+def plan_text(plan, scenario=None) -> str:
+    """The readable burn queue."""
+    d = plan_json(plan, scenario)
+    kind = d["apsides_kind"]
+    out = []
+    title = d.get("scenario", "plan")
+    out.append(f"{title}   epoch {d['epoch']}   model {d['model']}   "
+               f"{'FEASIBLE' if d['feasible'] else 'INFEASIBLE'}")
+    if d.get("vehicle"):
+        v = d["vehicle"]
+        out.append(f"vehicle {v['name']}: thrust {v['thrust_N']:.3f} N effective, "
+                   f"mdot {v['mdot_kg_s'] * 1e3:.4f} g/s, Isp {v['isp_s']:.1f} s"
+                   + (f", thrust factor {plan.thrust_factor:.4f}" if plan.thrust_factor != 1.0 else ""))
+    out.append("")
+    head = (f"{'#':>3}  {'apsis':<9} {'ignition (UTC)':<24} {'dur s':>8} {'dv m/s':>9} {'loss':>6} "
+            f"{'prop kg':>8} {'mass kg':>9}  after {kind} peri x apo km")
+    out.append(head)
+    out.append("-" * len(head))
+    for b in d["burns"]:
+        out.append(f"{b['index']:>3}  {b['apsis']:<9} {b['ignition']:<24} {b['duration_s']:>8.1f} "
+                   f"{b['dv_mps']:>9.3f} {b['finite_loss_mps']:>6.3f} {b['propellant_kg']:>8.3f} "
+                   f"{b['mass_before_kg']:>9.3f}  {b['after']['periapsis_alt_km']:.3f} x "
+                   f"{b['after']['apoapsis_alt_km']:.3f}")
+    t = d["totals"]
+    out.append("-" * len(head))
+    out.append(f"totals: {len(d['burns'])} burns, dv {t['dv_mps']:.3f} m/s (impulsive "
+               f"{t['impulsive_dv_mps']:.3f}, finite loss {t['finite_loss_mps']:.3f}), propellant "
+               f"{t['propellant_kg']:.3f} kg, burning {t['duration_s']:.0f} s")
+    f = d["final"]
+    out.append(f"final {kind} orbit: {f['periapsis_alt_km']:.3f} x {f['apoapsis_alt_km']:.3f} km")
+    p = d["propellant"]
+    out.append(f"propellant: loaded {p['loaded_kg']:.3f} kg, usable {p['usable_kg']:.3f}, after plan "
+               f"{p['after_plan_kg']:.3f}, reserve {p['reserve_kg']:.3f}, margin {p['margin_kg']:.3f} kg "
+               f"(buys {p['dv_remaining_mps']:.1f} m/s)")
+    out.append("times: ignition puts half of each burn's delta-v before the apsis (half-dv rule)")
+    for w in d["warnings"]:
+        out.append(f"WARNING: {w}")
+    for c in d["cautions"]:
+        out.append(f"caution: {c}")
+    return "\n".join(out)

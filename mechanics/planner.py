@@ -1,0 +1,665 @@
+"""Burn planning with real engines: apsis timing, finite burns, split burns, propellant.
+
+The plan is built in three layers.
+
+1. **Impulsive design** (:func:`design_legs`): the target becomes a sequence of tangential
+   apsis manoeuvres ("legs").  Each leg burns at one apsis of the current (mean) orbit and
+   moves the opposite apsis to a new radius; the cheapest ordering is chosen for two-apsis
+   targets (Hohmann-type), and a bi-elliptic target gets its three legs.  A start orbit whose
+   mean eccentricity is below ``CIRCULAR_START_E`` has no useful apsis: its first burn goes at
+   the earliest opportunity after the lead time.
+2. **Splitting**: a leg whose single burn would break the vehicle's ``max_burn_duration`` or
+   ``max_burn_arc`` becomes a group of N burns on successive passes of the same apsis; burn k
+   aims at the opposite-apsis radius reached by k/N of the leg's impulsive delta-v, the last
+   one trims to the leg's goal.  N is the smallest count that keeps every burn within both
+   limits (with ``SPLIT_MARGIN`` to spare, since finite burns run longer than the impulsive
+   estimate).  ``split = N`` forces N; ``split = "off"`` plans one burn and warns.
+3. **Finite burns**: each burn is flown numerically (:func:`mechanics.flight.fly`, same force
+   model as the coasts) at constant thrust and mass flow.  Its centre is the apsis passage
+   predicted from the mean elements; ignition is placed so that **half of the burn's delta-v
+   is delivered before the apsis** (t_ign = t_apsis - m0/mdot (1 - exp(-dv / (2 c)))).  This
+   "half delta-v" rule centres the delivered impulse, not the clock time, on the apsis, so the
+   line of apsides does not turn as the vehicle lightens; the half-duration rule (CCSDS OPM's
+   mid-burn convention) ignites later by a few tenths of a percent of the duration, and each
+   burn reports that alternative ignition too.  The duration is solved (secant method) so that
+   the flown orbit's radius opposite the burn point meets the goal to ``GOAL_TOLERANCE_M``.
+   When a plan has two or more legs, the last two are iterated together (the burn-point radius
+   of the last leg is the goal of the one before, and the last leg's finite arc disturbs it)
+   until the final orbit meets both target apsides.
+
+Under ``"two-body+J2"`` every radius compared with a goal is taken from the orbit-averaged
+(mean) elements of :mod:`mechanics.mean`; under ``"two-body"`` from the osculating conic.
+
+References
+----------
+Vallado (2013), sec. 6.3 (Hohmann, bi-elliptic) and sec. 6.8 (finite burns, the loss of a
+fixed-attitude burn); Curtis (2014) sec. 6.2 and 11.3 (finite burn integration).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .bodies import Body
+from .elements import rv_to_elements
+from .flight import Thrust, fly
+from .impulsive import apsis_burn_dv, opposite_apsis_after, vis_viva_speed
+from .kepler import TWO_PI, propagate_kepler
+from .mean import MeanOrbit, mean_orbit
+from .scenario import Scenario, Target
+
+#: Mean eccentricity below which a start orbit counts as circular for planning (its first burn
+#: goes at the earliest opportunity; in LEO this is an apsis difference under ~1.4 km).
+CIRCULAR_START_E = 1e-4
+#: How close the flown orbit must come to each burn's goal radius, m.
+GOAL_TOLERANCE_M = 10.0
+#: How close the final orbit must come to the target apsides, m.
+TARGET_TOLERANCE_M = 50.0
+#: Fraction of a vehicle limit the impulsive estimate may use when choosing N.
+SPLIT_MARGIN = 0.97
+#: Legs that move an apsis by less than this are dropped, m.
+SKIP_LEG_M = 20.0
+
+
+@dataclass(frozen=True)
+class Leg:
+    """One impulsive apsis manoeuvre of the design.
+
+    Attributes
+    ----------
+    burn_at : str
+        ``"periapsis"``, ``"apoapsis"`` (of the orbit before the leg) or ``"any"`` (circular).
+    goal_radius_m : float
+        Radius the opposite apsis is moved to, m.
+    sense : int
+        +1 prograde (raise), -1 retrograde (lower).
+    """
+
+    burn_at: str
+    goal_radius_m: float
+    sense: int
+
+
+@dataclass(frozen=True)
+class PlannedBurn:
+    """One burn of the queue (SI units, times in UTC seconds since 1970)."""
+
+    index: int
+    leg: int
+    apsis: str
+    apsis_time_s: float
+    ignition_s: float
+    cutoff_s: float
+    duration_s: float
+    dv_m_s: float
+    impulsive_dv_m_s: float
+    propellant_kg: float
+    mass_before_kg: float
+    mass_after_kg: float
+    thrust_n: float
+    mdot_kg_s: float
+    attitude_mode: str
+    direction: tuple
+    sense: int
+    arc_rad: float
+    goal_radius_m: float
+    after_periapsis_radius_m: float
+    after_apoapsis_radius_m: float
+    ignition_half_duration_s: float
+    state_before: tuple
+    state_after: tuple
+    centre_direction: tuple
+    placement: str
+
+    @property
+    def finite_loss_m_s(self) -> float:
+        return self.dv_m_s - self.impulsive_dv_m_s
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A burn queue and its propellant figures."""
+
+    feasible: bool
+    model: str
+    epoch_s: float
+    body: Body
+    r_m: tuple
+    v_m_s: tuple
+    mass_kg: float
+    burns: tuple
+    loaded_kg: float
+    usable_kg: float
+    unusable_kg: float
+    reserve_kg: float
+    after_plan_kg: float
+    margin_kg: float
+    dv_remaining_m_s: float
+    final_periapsis_radius_m: float
+    final_apoapsis_radius_m: float
+    thrust_factor: float
+    warnings: tuple = field(default_factory=tuple)
+
+    @property
+    def total_dv_m_s(self) -> float:
+        return sum(b.dv_m_s for b in self.burns)
+
+    @property
+    def total_impulsive_dv_m_s(self) -> float:
+        return sum(b.impulsive_dv_m_s for b in self.burns)
+
+    @property
+    def total_propellant_kg(self) -> float:
+        return sum(b.propellant_kg for b in self.burns)
+
+    @property
+    def total_duration_s(self) -> float:
+        return sum(b.duration_s for b in self.burns)
+
+
+# --------------------------------------------------------------------------- impulsive design
+
+def design_legs(rp_m: float, ra_m: float, circular: bool, target: Target, mu_m3_s2: float) -> list[Leg]:
+    """Impulsive legs taking mean apsides (rp, ra) to ``target`` (see module notes).
+
+    Raises
+    ------
+    ValueError
+        For a target one burn of its kind cannot reach (e.g. an apoapsis below the periapsis).
+    """
+    kind = target.kind
+    if kind == "apoapsis":
+        x = target.apoapsis_radius_m
+        if not circular and x < rp_m:
+            raise ValueError("target apoapsis is below the current periapsis: one burn cannot do it "
+                             "(use kind \"apsides\")")
+        legs = [Leg("any" if circular else "periapsis", x, 1 if x > (rp_m if circular else ra_m) else -1)]
+    elif kind == "periapsis":
+        x = target.periapsis_radius_m
+        if circular and x > ra_m:
+            raise ValueError("target periapsis is above the current circular orbit: that raises "
+                             "the apoapsis (use kind \"apoapsis\" or \"apsides\")")
+        if not circular and x > ra_m:
+            raise ValueError("target periapsis is above the current apoapsis: one burn cannot do it "
+                             "(use kind \"apsides\")")
+        legs = [Leg("any" if circular else "apoapsis", x, 1 if x > rp_m else -1)]
+    elif kind in ("circular", "apsides"):
+        legs = _two_leg_design(rp_m, ra_m, circular, target.periapsis_radius_m,
+                               target.apoapsis_radius_m, mu_m3_s2)
+    else:  # bielliptic
+        via, r_t = target.via_radius_m, target.periapsis_radius_m
+        if via < max(ra_m, r_t):
+            raise ValueError("target via_alt must lie above both the current apoapsis and the target")
+        first_at = "any" if circular else "periapsis"
+        legs = [Leg(first_at, via, 1), Leg("apoapsis", r_t, 1 if r_t > rp_m else -1),
+                Leg("periapsis", r_t, -1)]
+    current = (rp_m, ra_m)
+    kept = []
+    for leg in legs:
+        burn_r, other_r = _leg_radii(leg, current)
+        if abs(leg.goal_radius_m - other_r) >= SKIP_LEG_M:
+            kept.append(leg)
+        current = tuple(sorted((burn_r, leg.goal_radius_m)))
+    return kept
+
+
+def _leg_radii(leg: Leg, apsides) -> tuple[float, float]:
+    rp, ra = apsides
+    if leg.burn_at == "apoapsis":
+        return ra, rp
+    return rp, ra  # periapsis, or "any" on a circular orbit (rp ~ ra)
+
+
+def _two_leg_design(rp, ra, circular, rp_t, ra_t, mu):
+    best = None
+    starts = ("any",) if circular else ("periapsis", "apoapsis")
+    for start in starts:
+        rb1, ro1 = (ra, rp) if start == "apoapsis" else (rp, ra)
+        for x1, x2 in ((ra_t, rp_t), (rp_t, ra_t)):
+            dv1 = apsis_burn_dv(rb1, ro1, x1, mu)
+            dv2 = apsis_burn_dv(x1, rb1, x2, mu)
+            total = abs(dv1) + abs(dv2)
+            second_at = "apoapsis" if x1 > rb1 else "periapsis"
+            legs = [Leg(start, x1, 1 if dv1 >= 0 else -1), Leg(second_at, x2, 1 if dv2 >= 0 else -1)]
+            if best is None or total < best[0] - 1e-9:
+                best = (total, legs)
+    return best[1]
+
+
+# --------------------------------------------------------------------------- helpers
+
+def _unit(x):
+    x = np.asarray(x, dtype=float)
+    return x / np.linalg.norm(x)
+
+
+def _radius_toward(mean: MeanOrbit, direction) -> float:
+    """Radius (m) of the mean ellipse in the inertial ``direction`` (projected on its plane)."""
+    i, raan = mean.i_rad, mean.raan_rad
+    h_hat = np.array([math.sin(raan) * math.sin(i), -math.cos(raan) * math.sin(i), math.cos(i)])
+    n_hat = np.array([math.cos(raan), math.sin(raan), 0.0])
+    m_hat = np.cross(h_hat, n_hat)
+    d = np.asarray(direction, dtype=float)
+    u = math.atan2(float(d @ m_hat), float(d @ n_hat))
+    p = mean.a_m * (1.0 - mean.e * mean.e)
+    return p / (1.0 + mean.e * math.cos(u - mean.argp_rad))
+
+
+class _Flight:
+    """Model-aware coasting, burning and averaging for one plan."""
+
+    def __init__(self, body: Body, model: str):
+        self.body = body
+        self.model = model
+
+    def coast(self, y, dt_s: float):
+        if dt_s == 0.0:
+            return np.array(y, dtype=float)
+        if self.model == "two-body":
+            r, v = propagate_kepler(y[:3], y[3:6], dt_s, self.body.mu_m3_s2)
+            return np.concatenate([r, v, [y[6]]])
+        y1, _ = fly(y, dt_s, self.body, self.model)
+        return y1
+
+    def coast_dense(self, y, dt_s: float):
+        """Callable state(t) for t in [0, dt_s] (t from the start)."""
+        if self.model == "two-body":
+            y = np.array(y, dtype=float)
+
+            def at(t):
+                r, v = propagate_kepler(y[:3], y[3:6], float(t), self.body.mu_m3_s2)
+                return np.concatenate([r, v, [y[6]]])
+            return at
+        _, sol = fly(y, max(dt_s, 1e-3), self.body, self.model, dense=True)
+        return lambda t: np.asarray(sol(float(t)), dtype=float)
+
+    def burn(self, y, duration_s: float, thrust: Thrust):
+        y1, _ = fly(y, duration_s, self.body, self.model, thrust=thrust)
+        return y1
+
+    def mean(self, y) -> MeanOrbit:
+        return mean_orbit(y[:3], y[3:6], self.body, self.model)
+
+
+@dataclass
+class _Engine:
+    thrust_n: float
+    mdot_kg_s: float
+
+    @property
+    def c_m_s(self) -> float:
+        return self.thrust_n / self.mdot_kg_s
+
+    def duration_for_dv(self, m0: float, dv: float) -> float:
+        return m0 / self.mdot_kg_s * -math.expm1(-abs(dv) / self.c_m_s)
+
+    def dv_for_duration(self, m0: float, duration: float) -> float:
+        m1 = m0 - self.mdot_kg_s * duration
+        return self.c_m_s * math.log(m0 / m1)
+
+    def pre_apsis_time(self, m0: float, duration: float) -> float:
+        """Half-delta-v rule: time from ignition until half the burn's delta-v is delivered."""
+        return m0 / self.mdot_kg_s * (1.0 - math.sqrt(max(m0 - self.mdot_kg_s * duration, 1e-300) / m0))
+
+
+# --------------------------------------------------------------------------- planner
+
+class PlanningError(ValueError):
+    """A plan cannot be made (the message says why, in physical terms)."""
+
+
+def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: float | None = None,
+                  first_index: int = 1, earliest_s: float | None = None) -> Plan:
+    """Plan the burn queue that takes ``scenario``'s state to its target.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        Needs a vehicle and a target.
+    thrust_factor : float
+        Calibration k (achieved / rated): thrust and mass flow are both scaled by k.
+    mass_kg : float, optional
+        Vehicle mass at the scenario epoch (default: dry + loaded propellant).
+    first_index : int
+        Number given to the first burn (sessions continue the numbering).
+    earliest_s : float, optional
+        No ignition before this time (default: epoch + lead time).
+
+    Returns
+    -------
+    Plan
+
+    Raises
+    ------
+    ValueError
+        For a missing vehicle or target, an open orbit, a target inside the body, zero thrust.
+    """
+    sc = scenario
+    if sc.vehicle is None:
+        raise ValueError("a plan needs a vehicle: add vehicle = \"NAME\" to the scenario")
+    if sc.target is None:
+        raise ValueError("a plan needs a target: add a [target] table to the scenario")
+    if not (math.isfinite(thrust_factor) and 0.05 <= thrust_factor <= 5.0):
+        raise ValueError(f"thrust factor {thrust_factor!r} is implausible (expected about 1)")
+    body, veh, target = sc.body, sc.vehicle, sc.target
+    for name in ("periapsis_radius_m", "apoapsis_radius_m", "via_radius_m"):
+        r = getattr(target, name)
+        if r is not None and r <= body.radius_m:
+            raise ValueError(f"target {name.replace('_radius_m', '')} is inside the body")
+    if target.i_rad is not None:
+        osc = rv_to_elements(np.array(sc.r_m), np.array(sc.v_m_s), body.mu_m3_s2)
+        if abs(target.i_rad - osc.i_rad) > math.radians(1e-6) and abs(target.i_rad - osc.i_rad) > 0:
+            raise ValueError("target.i: combined plane changes are not available in this version; "
+                             "remove i to keep the current plane")
+    engine = _Engine(veh.thrust_n * thrust_factor, veh.mdot_kg_s * thrust_factor)
+    if engine.thrust_n <= 0.0:
+        raise ValueError("vehicle has no thrust along the burn axis")
+    m0 = veh.wet_mass_kg if mass_kg is None else float(mass_kg)
+    if not (math.isfinite(m0) and m0 > veh.dry_mass_kg * (1.0 - 1e-12)):
+        raise ValueError("vehicle mass must be at least its dry mass")
+    fl = _Flight(body, sc.model)
+    y0 = np.concatenate([np.asarray(sc.r_m, float), np.asarray(sc.v_m_s, float), [m0]])
+    osc0 = rv_to_elements(y0[:3], y0[3:6], body.mu_m3_s2)
+    if osc0.e >= 1.0:
+        raise ValueError("orbit is hyperbolic: no apoapsis; the planner needs a closed orbit")
+    mean0 = fl.mean(y0)
+    if mean0.periapsis_radius_m <= body.radius_m:
+        raise ValueError("orbit intersects the body: periapsis is below the surface")
+    circular = mean0.e < CIRCULAR_START_E
+    legs = design_legs(mean0.periapsis_radius_m, mean0.apoapsis_radius_m, circular, target, body.mu_m3_s2)
+    earliest = sc.epoch_s + sc.options.lead_time_s if earliest_s is None else earliest_s
+    warnings: list[str] = []
+    state = _Campaign(sc, fl, engine, veh, warnings, earliest)
+    burns = state.fly_legs(legs, y0, sc.epoch_s, mean0, circular)
+    final_y, final_mean = state.final_y, state.final_mean
+    # Propellant book-keeping.
+    used = sum(b.propellant_kg for b in burns)
+    loaded = veh.propellant_kg
+    on_board = m0 - veh.dry_mass_kg
+    after = on_board - used
+    usable_now = on_board - veh.unusable_kg
+    margin = after - veh.unusable_kg - veh.reserve_kg
+    feasible = used <= usable_now + 1e-9 and not state.ran_dry
+    if not feasible:
+        warnings.append(f"infeasible: the plan needs {used:.3f} kg of propellant but only "
+                        f"{usable_now:.3f} kg is usable")
+    elif margin < 0.0:
+        warnings.append(f"propellant after the plan ({after:.3f} kg) eats {-margin:.3f} kg into the "
+                        f"reserve of {veh.reserve_kg:.3f} kg")
+    final_mass = float(final_y[6])
+    dv_rem = engine.c_m_s * math.log(final_mass / (final_mass - margin)) if margin > 0.0 else 0.0
+    burns = _renumber(burns, first_index)
+    for b in burns:
+        if b.ignition_s < earliest - 1e-6:
+            warnings.append(f"burn {b.index} ignites before the lead time allows")
+    if len(legs) == 1 and burns:
+        _note_other_apsis(legs[0], mean0, final_mean, warnings)
+    plan = Plan(
+        feasible=feasible, model=sc.model, epoch_s=sc.epoch_s, body=body,
+        r_m=tuple(sc.r_m), v_m_s=tuple(sc.v_m_s), mass_kg=m0,
+        burns=tuple(burns), loaded_kg=loaded, usable_kg=loaded - veh.unusable_kg,
+        unusable_kg=veh.unusable_kg, reserve_kg=veh.reserve_kg, after_plan_kg=after, margin_kg=margin,
+        dv_remaining_m_s=dv_rem,
+        final_periapsis_radius_m=final_mean.periapsis_radius_m,
+        final_apoapsis_radius_m=final_mean.apoapsis_radius_m,
+        thrust_factor=thrust_factor, warnings=tuple(dict.fromkeys(warnings)),
+    )
+    return plan
+
+
+def _note_other_apsis(leg: Leg, before: MeanOrbit, after: MeanOrbit, warnings: list) -> None:
+    """A one-leg plan holds the burn-point apsis only to first order: say how far it moved."""
+    if leg.burn_at == "apoapsis":
+        moved = after.apoapsis_radius_m - before.apoapsis_radius_m
+        name = "apoapsis"
+    elif leg.burn_at == "periapsis":
+        moved = after.periapsis_radius_m - before.periapsis_radius_m
+        name = "periapsis"
+    else:
+        return
+    if abs(moved) > 1000.0:
+        warnings.append(f"the {name} moves by {moved / 1e3:+.2f} km over the burns (finite-burn "
+                        "effect); use target kind \"apsides\" to hold it")
+
+
+def _renumber(burns, first_index):
+    from dataclasses import replace
+
+    return [replace(b, index=first_index + k) for k, b in enumerate(burns)]
+
+
+@dataclass
+class _Snapshot:
+    """Where the campaign stood before a burn: state, time, mean orbit."""
+
+    y: np.ndarray
+    t_s: float
+    mean: MeanOrbit
+
+
+class _Campaign:
+    """Flies the legs one burn at a time (scratch state of one planning run)."""
+
+    def __init__(self, sc: Scenario, fl: _Flight, engine: _Engine, veh, warnings, earliest):
+        self.sc = sc
+        self.fl = fl
+        self.engine = engine
+        self.warnings = warnings
+        self.earliest = earliest
+        self.ran_dry = False
+        self.final_y = None
+        self.final_mean = None
+        self.dry_floor = veh.dry_mass_kg + veh.unusable_kg
+        self.limit_s = veh.max_burn_duration_s
+        self.limit_arc = veh.max_burn_arc_rad
+
+    # -- legs ------------------------------------------------------------------------------
+    def fly_legs(self, legs, y0, t0, mean0, circular):
+        self._check_safe(mean0, "the current orbit")
+        snap = _Snapshot(np.asarray(y0, float), t0, mean0)
+        if not legs:
+            self.final_y, self.final_mean = snap.y, snap.mean
+            self.warnings.append("the orbit already meets the target: no burn is needed")
+            return []
+        burns: list[PlannedBurn] = []
+        snapshots: list[_Snapshot] = []
+        for g, leg in enumerate(legs):
+            group, group_snaps, snap = self._fly_leg(g, leg, snap, circular and g == 0)
+            burns.extend(group)
+            snapshots.extend(group_snaps)
+            if self.ran_dry:
+                break
+        if len(legs) >= 2 and not self.ran_dry:
+            burns, snapshots, snap = self._trim(legs, burns, snapshots, snap)
+        for b in burns:
+            self._check_limits(b)
+        self.final_y, self.final_mean = snap.y, snap.mean
+        return burns
+
+    def _split_count(self, snap: _Snapshot, dv_leg: float, r_b: float) -> int:
+        split = self.sc.options.split
+        if isinstance(split, int):
+            return split
+        if split == "off":
+            return 1
+        m = float(snap.y[6])
+        duration = self.engine.duration_for_dv(m, dv_leg)
+        rate = vis_viva_speed(r_b, snap.mean.a_m, self.sc.body.mu_m3_s2) / r_b
+        arc = duration * rate
+        need = max(duration / (self.limit_s * SPLIT_MARGIN), arc / (self.limit_arc * SPLIT_MARGIN), 1.0)
+        return int(math.ceil(need - 1e-9))
+
+    def _fly_leg(self, g: int, leg: Leg, snap: _Snapshot, circular: bool):
+        mu = self.sc.body.mu_m3_s2
+        r_b, r_o = _leg_radii(leg, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
+        dv_leg = apsis_burn_dv(r_b, r_o, leg.goal_radius_m, mu)
+        n = self._split_count(snap, abs(dv_leg), r_b)
+        goals = [opposite_apsis_after(r_b, r_o, dv_leg * k / n, mu) for k in range(1, n)]
+        goals.append(leg.goal_radius_m)
+        later = leg.burn_at if leg.burn_at != "any" else ("periapsis" if leg.sense > 0 else "apoapsis")
+        burns, snaps = [], []
+        for k, goal in enumerate(goals):
+            placement = "any" if (k == 0 and circular) else later
+            snaps.append(snap)
+            burn, snap = self._fly_burn(g, placement, goal, leg.sense, snap)
+            burns.append(burn)
+            if self.ran_dry:
+                break
+        return burns, snaps, snap
+
+    def _trim(self, legs, burns, snapshots, snap):
+        """Iterate the goal of the second-last leg's last burn until the final orbit's radius at
+        the last leg's burn point equals the second-last leg's goal (fixed-point iteration)."""
+        g_prev, g_last = len(legs) - 2, len(legs) - 1
+        desired = legs[g_prev].goal_radius_m
+        for _ in range(8):
+            centre = np.asarray(next(b for b in burns if b.leg == g_last).centre_direction)
+            err = _radius_toward(snap.mean, centre) - desired
+            err_other = _radius_toward(snap.mean, -centre) - legs[g_last].goal_radius_m
+            if abs(err) <= TARGET_TOLERANCE_M and abs(err_other) <= TARGET_TOLERANCE_M:
+                return burns, snapshots, snap
+            idx = max(k for k, b in enumerate(burns) if b.leg == g_prev)
+            prev, restart = burns[idx], snapshots[idx]
+            new_prev, snap1 = self._fly_burn(g_prev, prev.placement, prev.goal_radius_m - err,
+                                             prev.sense, restart)
+            group, group_snaps, snap = self._fly_leg(g_last, legs[g_last], snap1, False)
+            burns = burns[:idx] + [new_prev] + group
+            snapshots = snapshots[:idx] + [restart] + group_snaps
+            if self.ran_dry:
+                break
+        self.warnings.append(f"final orbit misses the target by more than {TARGET_TOLERANCE_M:.0f} m "
+                             "after trimming")
+        return burns, snapshots, snap
+
+    # -- one burn --------------------------------------------------------------------------
+    def _centre_time(self, placement: str, snap: _Snapshot, t_pre: float) -> float:
+        not_before = max(snap.t_s, self.earliest)
+        if placement == "any":
+            return not_before + t_pre
+        t_c = snap.t_s + snap.mean.time_to_apsis(placement)
+        period = snap.mean.anomalistic_period_s
+        while t_c - t_pre < not_before:
+            t_c += period
+        return t_c
+
+    def _fly_burn(self, g: int, placement: str, goal: float, sense: int, snap: _Snapshot):
+        body, eng, fl = self.sc.body, self.engine, self.fl
+        mu = body.mu_m3_s2
+        m0 = float(snap.y[6])
+        mean = snap.mean
+        if placement == "any":
+            r_b = r_o = 0.5 * (mean.periapsis_radius_m + mean.apoapsis_radius_m)
+        else:
+            r_b, r_o = _leg_radii(Leg(placement, goal, sense), (mean.periapsis_radius_m, mean.apoapsis_radius_m))
+        dv_imp = abs(apsis_burn_dv(r_b, r_o, goal, mu))
+        d_max = (m0 - self.dry_floor) / eng.mdot_kg_s
+        if d_max <= 0.0:
+            self.ran_dry = True
+            d_max = 1e-3
+        d0 = min(max(eng.duration_for_dv(m0, dv_imp), 1e-3), d_max)
+        t_pre0 = eng.pre_apsis_time(m0, d0)
+        t_c = self._centre_time(placement, snap, t_pre0)
+        pad = 0.5 * t_pre0 + 1.0
+        t_anchor = max(snap.t_s, t_c - t_pre0 - pad)
+        y_anchor = fl.coast(snap.y, t_anchor - snap.t_s)
+        y_centre = fl.coast(y_anchor, t_c - t_anchor)
+        centre_dir = _unit(y_centre[:3])
+        if placement == "any":
+            # the impulsive estimate from the radius actually found at the burn point
+            r_b = _radius_toward(mean, centre_dir)
+            r_o = _radius_toward(mean, -centre_dir)
+            dv_imp = abs(apsis_burn_dv(r_b, r_o, goal, mu))
+            d0 = min(max(eng.duration_for_dv(m0, dv_imp), 1e-3), d_max)
+        if self.sc.options.attitude == "inertial":
+            direction = tuple(float(c) for c in sense * _unit(y_centre[3:6]))
+        else:
+            direction = (float(sense), 0.0, 0.0)
+        thrust = Thrust(eng.thrust_n, eng.mdot_kg_s, self.sc.options.attitude, direction)
+
+        cache = {}
+
+        def evaluate(duration):
+            duration = float(min(max(duration, 1e-3), d_max))
+            if duration in cache:
+                return cache[duration]
+            if placement == "any":  # no apsis to centre on: ignite at the earliest moment
+                t_ign = max(snap.t_s, self.earliest)
+            else:
+                t_ign = t_c - eng.pre_apsis_time(m0, duration)
+            y_ign = fl.coast(y_anchor, t_ign - t_anchor) if t_ign >= t_anchor else fl.coast(snap.y, t_ign - snap.t_s)
+            y_cut = fl.burn(y_ign, duration, thrust)
+            m_after = fl.mean(y_cut)
+            miss = _radius_toward(m_after, -centre_dir) - goal
+            cache[duration] = (miss, t_ign, y_ign, y_cut, m_after, duration)
+            return cache[duration]
+
+        # Newton step from the impulsive slope, then secant steps.
+        eps = max(1e-3 * dv_imp, 1e-3)
+        slope_dv = (opposite_apsis_after(r_b, r_o, sense * (dv_imp + eps), mu)
+                    - opposite_apsis_after(r_b, r_o, sense * dv_imp, mu)) / eps
+        slope = slope_dv * eng.thrust_n / m0 * sense  # metres of goal radius per second of burn
+        x0 = d0
+        f0 = evaluate(x0)
+        best = f0
+        x1 = x0 - f0[0] / slope if slope != 0.0 else x0 * 1.01
+        for _ in range(12):
+            if abs(best[0]) <= GOAL_TOLERANCE_M:
+                break
+            x1 = min(max(x1, 1e-3), d_max)
+            f1 = evaluate(x1)
+            if abs(f1[0]) < abs(best[0]):
+                best = f1
+            if abs(f1[0]) <= GOAL_TOLERANCE_M or x1 == x0:
+                break
+            denom = f1[0] - f0[0]
+            x_next = x1 - f1[0] * (x1 - x0) / denom if denom != 0.0 else x1 - f1[0] / slope
+            x0, f0, x1 = x1, f1, x_next
+        miss, t_ign, y_ign, y_cut, m_after, duration = best
+        if abs(miss) > GOAL_TOLERANCE_M:
+            if duration >= d_max - 1e-6:
+                self.ran_dry = True
+                self.warnings.append(f"propellant runs out during the burn for leg {g + 1}: "
+                                     f"its goal is missed by {miss / 1e3:.3f} km")
+            else:
+                self.warnings.append(f"a burn of leg {g + 1} misses its goal by {miss:.0f} m")
+        m1 = float(y_cut[6])
+        dv = eng.c_m_s * math.log(m0 / m1)
+        r_i, r_f = y_ign[:3], y_cut[:3]
+        arc = math.acos(max(-1.0, min(1.0, float(np.dot(_unit(r_i), _unit(r_f))))))
+        apsis = placement if placement != "any" else ("periapsis" if sense > 0 else "apoapsis")
+        if placement == "any":
+            t_c = t_ign + eng.pre_apsis_time(m0, duration)
+        burn = PlannedBurn(
+            index=0, leg=g, apsis=apsis, apsis_time_s=t_c, ignition_s=t_ign, cutoff_s=t_ign + duration,
+            duration_s=duration, dv_m_s=dv, impulsive_dv_m_s=dv_imp, propellant_kg=m0 - m1,
+            mass_before_kg=m0, mass_after_kg=m1, thrust_n=eng.thrust_n, mdot_kg_s=eng.mdot_kg_s,
+            attitude_mode=self.sc.options.attitude, direction=direction, sense=sense, arc_rad=arc,
+            goal_radius_m=goal, after_periapsis_radius_m=m_after.periapsis_radius_m,
+            after_apoapsis_radius_m=m_after.apoapsis_radius_m,
+            ignition_half_duration_s=t_c - 0.5 * duration,
+            state_before=tuple(map(float, y_ign)), state_after=tuple(map(float, y_cut)),
+            centre_direction=tuple(map(float, centre_dir)), placement=placement,
+        )
+        self._check_safe(m_after, f"the orbit after a burn of leg {g + 1}")
+        return burn, _Snapshot(np.asarray(y_cut, float), t_ign + duration, m_after)
+
+    # -- checks ----------------------------------------------------------------------------
+    def _check_safe(self, mean: MeanOrbit, what: str) -> None:
+        body = self.sc.body
+        alt = mean.periapsis_radius_m - body.radius_m
+        if alt < body.min_safe_alt_m:
+            self.warnings.append(f"periapsis of {what} is {alt / 1e3:.1f} km, below the safe altitude "
+                                 f"of {body.min_safe_alt_m / 1e3:.0f} km")
+
+    def _check_limits(self, b: PlannedBurn) -> None:
+        over = []
+        if b.duration_s > self.limit_s * (1.0 + 1e-9):
+            over.append(f"duration {b.duration_s:.0f} s > {self.limit_s:.0f} s")
+        if b.arc_rad > self.limit_arc * (1.0 + 1e-9):
+            over.append(f"arc {math.degrees(b.arc_rad):.1f} deg > {math.degrees(self.limit_arc):.1f} deg")
+        if over:
+            why = "split = off" if self.sc.options.split == "off" else f"split = {self.sc.options.split}"
+            self.warnings.append(f"a burn of leg {b.leg + 1} exceeds the vehicle limits ({', '.join(over)}; {why})")
