@@ -55,7 +55,7 @@ from .scenario import Scenario, Target
 #: goes at the earliest opportunity; in LEO this is an apsis difference under ~1.4 km).
 CIRCULAR_START_E = 1e-4
 #: How close the flown orbit must come to each burn's goal radius, m.
-GOAL_TOLERANCE_M = 10.0
+GOAL_TOLERANCE_M = 1.0
 #: How close the final orbit must come to the target apsides, m.
 TARGET_TOLERANCE_M = 50.0
 #: Fraction of a vehicle limit the impulsive estimate may use when choosing N.
