@@ -49,21 +49,142 @@ def cmd_plan(args) -> int:
     return EXIT_OK if plan.feasible else EXIT_INFEASIBLE
 
 
+def _session_exit(v) -> int:
+    return EXIT_OK if v.feasible or (v.plan is not None and not v.plan.burns) else EXIT_INFEASIBLE
+
+
+def cmd_session_init(args) -> int:
+    from .scenario_file import load_scenario
+    from .session_ops import Session
+
+    sc = load_scenario(args.scenario)
+    with Session.create(args.session, sc, source=str(args.scenario)) as s:
+        v = s.view()
+        print(f"session {args.session} created from {args.scenario}: "
+              f"{sum(1 for r in v.rows if r.status == 'planned')} burn(s) planned")
+        return _session_exit(v)
+
+
+def cmd_session_show(args) -> int:
+    from .report import dumps, session_json, session_text
+    from .session_ops import Session
+
+    with Session.open(args.session, readonly=True) as s:
+        v = s.view()
+        print(dumps(session_json(s, v)) if args.json else session_text(s, v))
+        return _session_exit(v)
+
+
+def _after_state(args, body):
+    from mechanics.session.events import OrbitState
+
+    from .scenario_file import load_state_file
+
+    st = load_state_file(args.after, body)
+    return OrbitState(st.epoch_s, st.r_m, st.v_m_s)
+
+
+def cmd_session_record(args) -> int:
+    from .report import LEVEL_MARK
+    from .session_ops import Session
+    from .timeutil import parse_utc
+    from .units import parse_value
+
+    with Session.open(args.session) as s:
+        body = s.view().scenario.body
+        after = _after_state(args, body)
+        ign = parse_utc(args.ignition, "--ignition") if args.ignition else None
+        dur = parse_value(args.duration, "time", "--duration", allow_zero=False) if args.duration else None
+        prop = parse_value(args.propellant, "mass", "--propellant") if args.propellant is not None else None
+        seq = s.record_burn(args.burn, after, ignition_s=ign, duration_s=dur, propellant_kg=prop,
+                            propellant_source=args.source)
+        v = s.view()
+        row = next(r for r in v.rows if r.seq == seq)
+        d = row.drift
+        if d is not None:
+            print(f"burn {row.index} recorded as entry {seq}: delivered {d.delivered_dv_m_s:.3f} m/s, "
+                  f"{100 * (d.dv_ratio - 1):+.2f} % against the plan, drift {LEVEL_MARK[d.level]}, "
+                  f"thrust factor {d.thrust_factor:.4f}")
+            for flag in d.flags:
+                print(f"  {flag}")
+        else:
+            print(f"burn {row.index} recorded as entry {seq} (no thrust factor could be fitted)")
+        nxt = v.next_burn
+        cal = v.calibration
+        print(f"replanned with thrust factor {cal.thrust_factor:.4f} from {cal.burns_used} burn(s): "
+              + (f"next is burn {nxt.index}" if nxt else "no burn left")
+              + (f" ({v.plan_error})" if v.plan_error else ""))
+        return _session_exit(v)
+
+
+def cmd_session_state(args) -> int:
+    from .session_ops import Session
+
+    with Session.open(args.session) as s:
+        body = s.view().scenario.body
+        from .scenario_file import load_state_file
+        from mechanics.session.events import OrbitState
+
+        st = load_state_file(args.state, body)
+        seq = s.enter_state(OrbitState(st.epoch_s, st.r_m, st.v_m_s), st.form)
+        print(f"state recorded as entry {seq}; queue replanned")
+        return _session_exit(s.view())
+
+
+def cmd_session_gauge(args) -> int:
+    from .session_ops import Session
+    from .timeutil import parse_utc
+    from .units import parse_value
+
+    with Session.open(args.session) as s:
+        kg = parse_value(args.propellant, "mass", "--propellant")
+        seq = s.gauge(parse_utc(args.epoch, "--epoch"), kg, args.method)
+        g = s.view().ledger.gauges[-1]
+        print(f"gauge reading recorded as entry {seq}: gauge {g.gauge_kg:.3f} kg, book {g.book_kg:.3f} kg, "
+              f"difference {g.difference_kg:+.3f} kg")
+        return EXIT_OK
+
+
+def cmd_session_retract(args) -> int:
+    from .session_ops import Session
+
+    with Session.open(args.session) as s:
+        seq = s.retract(args.entry, args.reason or "")
+        print(f"entry {args.entry} retracted by entry {seq}; queue replanned")
+        return _session_exit(s.view())
+
+
+def cmd_session_export(args) -> int:
+    from .session_ops import Session, export_csv
+
+    with Session.open(args.session, readonly=True) as s:
+        for path in export_csv(s.view(), args.csv):
+            print(path)
+        return EXIT_OK
+
+
 def cmd_default(args) -> int:
     args.scenario = _demo_scenario()
     args.json = False
     return cmd_orbit(args)
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors (exit 2), like every other bad input."""
+
+    def error(self, message):  # noqa: D102 - argparse hook
+        self.exit(EXIT_BAD_INPUT, f"burndesk: {message} (see {self.prog} --help)\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
+    p = _Parser(
         prog="burndesk",
         description="Plan and fly orbit-change burn campaigns. Not flight-certified: verify every "
                     "plan independently and screen for conjunctions before upload.",
     )
     p.add_argument("--version", action="version", version=f"burndesk {VERSION}")
     p.set_defaults(func=cmd_default)
-    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     o = sub.add_parser("orbit", help="summarise the orbit of a scenario")
     o.add_argument("scenario", help="scenario file (TOML)")
@@ -74,6 +195,46 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("scenario", help="scenario file (TOML) with a vehicle and a [target]")
     pl.add_argument("--json", action="store_true", help="print JSON instead of the table")
     pl.set_defaults(func=cmd_plan)
+
+    se = sub.add_parser("session", help="campaign sessions: record burns, drift, calibration, ledger")
+    ss = se.add_subparsers(dest="action", metavar="ACTION", required=True, parser_class=_Parser)
+    a = ss.add_parser("init", help="create a session from a scenario (never overwrites)")
+    a.add_argument("session", help="session file to create")
+    a.add_argument("--scenario", required=True, help="scenario file (TOML)")
+    a.set_defaults(func=cmd_session_init)
+    a = ss.add_parser("show", help="the campaign: queue, drift, calibration, ledger, entries")
+    a.add_argument("session")
+    a.add_argument("--json", action="store_true")
+    a.set_defaults(func=cmd_session_show)
+    a = ss.add_parser("record", help="record what a burn did")
+    a.add_argument("session")
+    a.add_argument("--burn", type=int, required=True, help="burn number (the next in the queue)")
+    a.add_argument("--after", required=True, help="STATE.toml: epoch and [state] from orbit determination")
+    a.add_argument("--ignition", help="actual ignition, ISO 8601 UTC (default: as commanded)")
+    a.add_argument("--duration", help="actual on-time, e.g. 382.5 or '6.4 min' (default: as commanded)")
+    a.add_argument("--propellant", help="propellant used, e.g. 0.71 or '710 g' (default: book-kept from the fit)")
+    a.add_argument("--source", choices=("gauge", "book-keeping"), default="book-keeping",
+                   help="where --propellant comes from")
+    a.set_defaults(func=cmd_session_record)
+    a = ss.add_parser("state", help="enter a new orbit-determination state")
+    a.add_argument("session")
+    a.add_argument("--state", required=True, help="STATE.toml: epoch and [state]")
+    a.set_defaults(func=cmd_session_state)
+    a = ss.add_parser("gauge", help="record a propellant gauge reading")
+    a.add_argument("session")
+    a.add_argument("--propellant", required=True, help="propellant on board, e.g. 10.2 or '10.2 kg'")
+    a.add_argument("--epoch", required=True, help="time of the reading, ISO 8601 UTC")
+    a.add_argument("--method", default="PVT", help="how it was measured (default PVT)")
+    a.set_defaults(func=cmd_session_gauge)
+    a = ss.add_parser("retract", help="withdraw an entry (history is kept)")
+    a.add_argument("session")
+    a.add_argument("--entry", type=int, required=True, help="entry number (see session show)")
+    a.add_argument("--reason", help="why")
+    a.set_defaults(func=cmd_session_retract)
+    a = ss.add_parser("export", help="write queue.csv, ledger.csv, drift.csv")
+    a.add_argument("session")
+    a.add_argument("--csv", required=True, help="existing folder to write into")
+    a.set_defaults(func=cmd_session_export)
     return p
 
 

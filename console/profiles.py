@@ -72,6 +72,8 @@ def resolve_ref(ref, kind: str, base_dir: Path | None, field: str) -> Path:
     path = Path(ref).expanduser()
     if not path.is_absolute():
         path = (base_dir or Path.cwd()) / path
+    if not path.exists():
+        raise ValueError(f"{field}: {ref!r} not found (looked for {path})")
     return path
 
 

@@ -171,7 +171,7 @@ def parse_target(table, body: Body, where: str = "target") -> Target:
         "periapsis": ("altitude",),
         "bielliptic": ("altitude", "via_alt"),
     }
-    if kind not in need:
+    if not isinstance(kind, str) or kind not in need:
         raise ValueError(f"{where}.kind: {kind!r} is not known: use one of {', '.join(need)}")
     for key in need[kind]:
         if key not in table:

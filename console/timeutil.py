@@ -8,6 +8,7 @@ spans a leap second, and a time written as 23:59:60 is refused rather than guess
 from __future__ import annotations
 
 import calendar
+import datetime as _dt
 import math
 import re
 import time
@@ -29,6 +30,10 @@ def parse_utc(text, field: str = "epoch") -> float:
         Naming ``field``, for anything else (no zone, another offset, a leap second, an
         impossible date).
     """
+    if isinstance(text, _dt.datetime):  # an unquoted TOML datetime
+        if text.tzinfo is None or text.utcoffset() != _dt.timedelta(0):
+            raise ValueError(f"{field}: {text.isoformat()} is not UTC: give UTC with a trailing Z")
+        return calendar.timegm(text.utctimetuple()) + text.microsecond * 1e-6
     if not isinstance(text, str):
         raise ValueError(f"{field}: expected an ISO 8601 UTC string like 2027-03-14T06:00:00Z, "
                          f"got {type(text).__name__}")
@@ -42,7 +47,7 @@ def parse_utc(text, field: str = "epoch") -> float:
     zone = m.group(8)
     if zone is None:
         raise ValueError(f"{field}: {text!r} has no time zone: times are UTC, end them with Z")
-    if zone != "Z" and zone.replace(":", "") not in ("+0000", "-0000"):
+    if zone != "Z" and zone.replace(":", "") != "+0000":
         raise ValueError(f"{field}: {text!r} is not UTC (offset {zone}): give UTC with a trailing Z")
     if second == 60:
         raise ValueError(f"{field}: {text!r} names a leap second, which burndesk does not handle")

@@ -57,7 +57,10 @@ def parse_value(value, kind: str, field: str, *, allow_negative: bool = False,
     if isinstance(value, bool):
         raise ValueError(f"{field}: expected {human}, got a true/false value")
     if isinstance(value, (int, float)):
-        number = float(value)
+        try:
+            number = float(value)
+        except OverflowError:
+            raise ValueError(f"{field}: {value!r} is too large") from None
         if not math.isfinite(number):
             raise ValueError(f"{field}: {value!r} is not a finite number")
         result = _to_si(number, default, si, field) if default else number
@@ -113,15 +116,16 @@ def _parse_text(text: str, kind: str, field: str) -> float:
         raise ValueError(f"{field}: cannot read {text!r} as {human}")
     try:
         if kind in ("dimensionless", "ratio"):
-            if not q.dimensionless:
+            # pint counts angles (deg, rad, turn) as dimensionless: a plain number or a ratio
+            # takes only units without an angle scale (%, ppm, dimensionless).
+            if not (q.dimensionless and q.unitless):
                 raise ValueError
             magnitude = q.to("").magnitude
         elif kind == "angle":
-            magnitude = q.to("rad").magnitude if q.dimensionless else None
-            if magnitude is None:
+            # pint counts %, ppm as "unitless": they are ratios, not angles.
+            if not q.dimensionless or q.unitless:
                 raise ValueError
-            if q.unitless:
-                magnitude = math.radians(q.magnitude)
+            magnitude = q.to("rad").magnitude
         else:
             magnitude = q.to(si).magnitude
     except Exception:

@@ -384,8 +384,10 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     margin = after - veh.unusable_kg - veh.reserve_kg
     feasible = used <= usable_now + 1e-9 and not state.ran_dry
     if not feasible:
-        warnings.append(f"infeasible: the plan needs {used:.3f} kg of propellant but only "
-                        f"{usable_now:.3f} kg is usable")
+        need_dv = _design_dv(legs, mean0, body.mu_m3_s2)
+        need_kg = m0 * -math.expm1(-need_dv / engine.c_m_s)
+        warnings.append(f"infeasible: the target needs about {need_dv:.1f} m/s, i.e. {need_kg:.3f} kg "
+                        f"of propellant (impulsive estimate), but only {usable_now:.3f} kg is usable")
     elif margin < 0.0:
         warnings.append(f"propellant after the plan ({after:.3f} kg) eats {-margin:.3f} kg into the "
                         f"reserve of {veh.reserve_kg:.3f} kg")
@@ -408,6 +410,17 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
         thrust_factor=thrust_factor, warnings=tuple(dict.fromkeys(warnings)),
     )
     return plan
+
+
+def _design_dv(legs, mean0: MeanOrbit, mu: float) -> float:
+    """Total impulsive delta-v (m/s) of the design legs from the start orbit."""
+    apsides = (mean0.periapsis_radius_m, mean0.apoapsis_radius_m)
+    total = 0.0
+    for leg in legs:
+        burn_r, other_r = _leg_radii(leg, apsides)
+        total += abs(apsis_burn_dv(burn_r, other_r, leg.goal_radius_m, mu))
+        apsides = tuple(sorted((burn_r, leg.goal_radius_m)))
+    return total
 
 
 def _note_other_apsis(leg: Leg, before: MeanOrbit, after: MeanOrbit, warnings: list) -> None:
@@ -621,10 +634,10 @@ class _Campaign:
         if abs(miss) > GOAL_TOLERANCE_M:
             if duration >= d_max - 1e-6:
                 self.ran_dry = True
-                self.warnings.append(f"propellant runs out during the burn for leg {g + 1}: "
-                                     f"its goal is missed by {miss / 1e3:.3f} km")
+                self.warnings.append(f"propellant runs out during a burn of leg {g + 1}: its goal "
+                                     f"radius is missed by {abs(miss) / 1e3:.3f} km")
             else:
-                self.warnings.append(f"a burn of leg {g + 1} misses its goal by {miss:.0f} m")
+                self.warnings.append(f"a burn of leg {g + 1} misses its goal radius by {abs(miss):.0f} m")
         m1 = float(y_cut[6])
         dv = eng.c_m_s * math.log(m0 / m1)
         r_i, r_f = y_ign[:3], y_cut[:3]
