@@ -163,6 +163,14 @@ def cmd_session_export(args) -> int:
         return EXIT_OK
 
 
+def cmd_session_recover(args) -> int:
+    from mechanics.session.journal import recover
+
+    report = recover(args.damaged, args.new)
+    print(report.summary())
+    return EXIT_OK if report.complete else EXIT_INFEASIBLE
+
+
 def cmd_default(args) -> int:
     args.scenario = _demo_scenario()
     args.json = False
@@ -235,6 +243,10 @@ def build_parser() -> argparse.ArgumentParser:
     a.add_argument("session")
     a.add_argument("--csv", required=True, help="existing folder to write into")
     a.set_defaults(func=cmd_session_export)
+    a = ss.add_parser("recover", help="copy the intact entries of a damaged session into a new file")
+    a.add_argument("damaged", help="the damaged session file (only read)")
+    a.add_argument("new", help="the new session file to write (must not exist)")
+    a.set_defaults(func=cmd_session_recover)
     return p
 
 

@@ -226,3 +226,147 @@ def plan_text(plan, scenario=None) -> str:
     for c in d["cautions"]:
         out.append(f"caution: {c}")
     return "\n".join(out)
+
+
+def session_json(session, v) -> dict:
+    """``burndesk session show --json``: the plan document for the whole campaign."""
+    sc = v.scenario
+    R = sc.body.radius_m
+    body = sc.body
+    burns = []
+    tot_dv = tot_imp = tot_prop = tot_dur = 0.0
+    for row in v.rows:
+        d = burn_json(row.planned, R)
+        d["index"] = row.index
+        d["status"] = row.status
+        d["entry"] = row.seq
+        a = row.actual
+        d["actual"] = None if a is None else {
+            "ignition": format_utc(a["ignition_s"]),
+            "duration_s": a["duration_s"],
+            "propellant_kg": a["propellant_kg"],
+            "propellant_source": a["propellant_source"],
+            "dv_mps": a["dv_m_s"],
+        }
+        d["drift"] = None if row.drift is None else {
+            "dv_ratio": row.drift.dv_ratio,
+            "level": row.drift.level,
+            "thrust_factor": row.drift.thrust_factor,
+            "residual_km": row.drift.residual_m / 1e3,
+            "isp_ratio": row.drift.isp_ratio,
+            "flags": list(row.drift.flags),
+        }
+        if row.status == "done":
+            tot_dv += a["dv_m_s"] or 0.0
+            tot_imp += row.planned.impulsive_dv_m_s
+            tot_prop += a["propellant_kg"] or 0.0
+            tot_dur += a["duration_s"]
+        elif row.status == "planned":
+            tot_dv += row.planned.dv_m_s
+            tot_imp += row.planned.impulsive_dv_m_s
+            tot_prop += row.planned.propellant_kg
+            tot_dur += row.planned.duration_s
+        burns.append(d)
+    lg = v.ledger
+    plan = v.plan
+    doc = {
+        "session": str(session.journal.path),
+        "scenario": sc.name,
+        "feasible": v.feasible,
+        "model": sc.model,
+        "epoch": format_utc(v.latest.epoch_s),
+        "latest_source": v.latest.source,
+        "body": {"name": body.name, "mu_m3_s2": body.mu_m3_s2, "radius_m": body.radius_m, "j2": body.j2},
+        "initial_state": {"r_m": list(v.latest.r_m), "v_mps": list(v.latest.v_m_s), "mass_kg": v.latest.mass_kg},
+        "apsides_kind": "mean" if sc.model == "two-body+J2" else "osculating",
+        "burns": burns,
+        "totals": {"dv_mps": tot_dv, "impulsive_dv_mps": tot_imp, "finite_loss_mps": tot_dv - tot_imp,
+                   "propellant_kg": tot_prop, "duration_s": tot_dur},
+        "final": None if plan is None else {
+            "periapsis_alt_km": (plan.final_periapsis_radius_m - R) / 1e3,
+            "apoapsis_alt_km": (plan.final_apoapsis_radius_m - R) / 1e3,
+        },
+        "calibration": {"thrust_factor": v.calibration.thrust_factor,
+                        "burns_used": v.calibration.burns_used,
+                        "spread": v.calibration.spread,
+                        "factors": list(v.calibration.factors)},
+        "propellant": {
+            "loaded_kg": lg.loaded_kg,
+            "used_kg": lg.used_recorded_kg,
+            "used_planned_kg": lg.used_planned_kg,
+            "remaining_kg": lg.remaining_kg,
+            "usable_kg": lg.usable_kg,
+            "unusable_kg": lg.unusable_kg,
+            "reserve_kg": lg.reserve_kg,
+            "remaining_plan_kg": lg.remaining_plan_kg,
+            "after_plan_kg": lg.after_plan_kg,
+            "margin_kg": lg.margin_kg,
+            "dv_remaining_mps": lg.dv_remaining_m_s,
+            "per_burn": [{"burn": b, "planned_kg": p, "recorded_kg": u, "source": s}
+                         for b, p, u, s in lg.per_burn],
+            "gauges": [{"entry": g.seq, "epoch": format_utc(g.epoch_s), "gauge_kg": g.gauge_kg,
+                        "book_kg": g.book_kg, "difference_kg": g.difference_kg, "method": g.method}
+                       for g in lg.gauges],
+        },
+        "plan_error": v.plan_error,
+        "warnings": list(v.warnings) + [f"entry {r.seq} ({r.kind}) not replayed: {r.reason}"
+                                        for r in session.rejected],
+        "entries": [{"entry": s, "written": w, "kind": k, "summary": t, "status": st or "active"}
+                    for s, w, k, t, st in session.entries()],
+        "cautions": list(CAUTIONS),
+    }
+    return doc
+
+
+LEVEL_MARK = {"ok": "ok", "watch": "WATCH", "alarm": "ALARM!"}
+
+
+def session_text(session, v) -> str:
+    d = session_json(session, v)
+    kind = d["apsides_kind"]
+    out = [f"{d['scenario']}   session {d['session']}",
+           f"latest orbit {d['epoch']} ({d['latest_source']}), mass {d['initial_state']['mass_kg']:.3f} kg, "
+           f"model {d['model']}   {'FEASIBLE' if d['feasible'] else 'NOT FEASIBLE'}"]
+    cal = d["calibration"]
+    spread = "" if cal["spread"] is None else f" +/- {cal['spread']:.4f}"
+    out.append(f"thrust factor {cal['thrust_factor']:.4f}{spread} from {cal['burns_used']} burn(s)")
+    out.append("")
+    head = (f"{'#':>3}  {'status':<9} {'apsis':<9} {'ignition (UTC)':<24} {'dur s':>8} {'dv m/s':>8} "
+            f"{'prop kg':>8}  {'drift':<7} after {kind} km")
+    out.append(head)
+    out.append("-" * len(head))
+    for b in d["burns"]:
+        a = b["actual"]
+        ign = a["ignition"] if a else b["ignition"]
+        dur = a["duration_s"] if a else b["duration_s"]
+        dv = (a["dv_mps"] if a and a["dv_mps"] is not None else b["dv_mps"])
+        prop = a["propellant_kg"] if a and a["propellant_kg"] is not None else b["propellant_kg"]
+        drift = "-" if b["drift"] is None else f"{LEVEL_MARK[b['drift']['level']]}"
+        ratio = "" if b["drift"] is None else f" {100 * (b['drift']['dv_ratio'] - 1):+.1f}%"
+        out.append(f"{b['index']:>3}  {b['status']:<9} {b['apsis']:<9} {ign:<24} {dur:>8.1f} {dv:>8.3f} "
+                   f"{prop:>8.3f}  {drift + ratio:<7} {b['after']['periapsis_alt_km']:.3f} x "
+                   f"{b['after']['apoapsis_alt_km']:.3f}")
+    out.append("-" * len(head))
+    if d["final"]:
+        out.append(f"final {kind} orbit: {d['final']['periapsis_alt_km']:.3f} x {d['final']['apoapsis_alt_km']:.3f} km")
+    if d["plan_error"]:
+        out.append(f"PLAN ERROR: {d['plan_error']}")
+    p = d["propellant"]
+    out.append(f"propellant: loaded {p['loaded_kg']:.3f} kg, used {p['used_kg']:.3f} (planned "
+               f"{p['used_planned_kg']:.3f}), on board {p['remaining_kg']:.3f}, still planned "
+               f"{p['remaining_plan_kg']:.3f}, after plan {p['after_plan_kg']:.3f}")
+    out.append(f"            unusable {p['unusable_kg']:.3f}, reserve {p['reserve_kg']:.3f}, margin "
+               f"{p['margin_kg']:.3f} kg (buys {p['dv_remaining_mps']:.1f} m/s)")
+    for g in p["gauges"]:
+        out.append(f"gauge entry {g['entry']} at {g['epoch']}: gauge {g['gauge_kg']:.3f} kg, book "
+                   f"{g['book_kg']:.3f} kg, difference {g['difference_kg']:+.3f} kg")
+    for w in d["warnings"]:
+        out.append(f"WARNING: {w}")
+    out.append("")
+    out.append("entries:")
+    for e in d["entries"]:
+        mark = "" if e["status"] == "active" else f" [{e['status']}]"
+        out.append(f"  {e['entry']:>4}  {e['written']}  {e['summary']}{mark}")
+    for c in d["cautions"]:
+        out.append(f"caution: {c}")
+    return "\n".join(out)
