@@ -35,6 +35,16 @@ from .constants import CIRCULAR_E, EQUATORIAL_I_RAD, PARABOLIC_BAND
 TWO_PI = 2.0 * math.pi
 
 
+def mod_2pi(angle_rad):
+    """Angles (rad) wrapped into [0, 2 pi), as an ndarray.
+
+    ``np.mod`` alone returns 2 pi itself for a tiny negative input (-1e-17 mod 2 pi rounds up
+    to 2 pi); that value is mapped to 0 so that the documented half-open range holds.
+    """
+    x = np.mod(np.asarray(angle_rad, dtype=float), TWO_PI)
+    return np.where(x >= TWO_PI, 0.0, x)
+
+
 @dataclass(frozen=True)
 class Elements:
     """Classical orbital elements (floats or equally shaped arrays).
@@ -66,7 +76,7 @@ class Elements:
     @property
     def arglat_rad(self):
         """Argument of latitude u = argp + nu, rad, in [0, 2 pi)."""
-        return np.mod(self.argp_rad + self.nu_rad, TWO_PI)
+        return mod_2pi(self.argp_rad + self.nu_rad)
 
     @property
     def periapsis_radius_m(self):
@@ -189,9 +199,9 @@ def rv_to_elements(r_m, v_m_s, mu_m3_s2: float) -> Elements:
         a_m=out(a),
         e=out(e),
         i_rad=out(i),
-        raan_rad=out(np.mod(raan, TWO_PI)),
-        argp_rad=out(np.mod(argp, TWO_PI)),
-        nu_rad=out(np.mod(nu, TWO_PI)),
+        raan_rad=out(mod_2pi(raan)),
+        argp_rad=out(mod_2pi(argp)),
+        nu_rad=out(mod_2pi(nu)),
     )
 
 

@@ -18,7 +18,7 @@ import math
 
 import numpy as np
 
-from .elements import Elements, elements_to_rv, rv_to_elements
+from .elements import Elements, elements_to_rv, mod_2pi, rv_to_elements
 
 TWO_PI = 2.0 * math.pi
 
@@ -33,12 +33,12 @@ def _out(x):
 
 def wrap_2pi(angle_rad):
     """Angle wrapped into [0, 2 pi)."""
-    return _out(np.mod(angle_rad, TWO_PI))
+    return _out(mod_2pi(angle_rad))
 
 
 def wrap_pi(angle_rad):
     """Angle wrapped into [-pi, pi)."""
-    return _out(np.mod(np.asarray(angle_rad, dtype=float) + math.pi, TWO_PI) - math.pi)
+    return _out(mod_2pi(np.asarray(angle_rad, dtype=float) + math.pi) - math.pi)
 
 
 def true_to_eccentric(nu_rad, e):
@@ -153,8 +153,11 @@ def _kepler_newton_fallback(E, e, m, bad):
 def solve_kepler_hyperbolic(M_rad, e):
     """Hyperbolic anomaly H from M = e sinh H - H, for e > 1 (Vallado Algorithm 4).
 
-    Newton's method from H0 = asinh(M / e) (or a logarithmic start for large M); the function
-    is convex for H > 0, so after the first step the iterates descend monotonically.
+    Newton's method.  For |M| < 6 e the start is min((6 |M| / e)^(1/3), |M| / (e - 1)), which
+    lies on or above the root (sinh H >= H + H^3 / 6); the function is convex for H > 0, so
+    the iterates descend monotonically from there, also near e = 1 where a start below the
+    root would be thrown far out by the small slope e cosh H - 1.  For larger |M| the start is
+    logarithmic.
     """
     M = np.asarray(M_rad, dtype=float)
     e = np.asarray(e, dtype=float)
@@ -163,7 +166,10 @@ def solve_kepler_hyperbolic(M_rad, e):
     M, e = np.broadcast_arrays(M, e)
     sign = np.sign(M)
     Ma = np.abs(M)
-    H = np.where(Ma < 6.0 * e, np.arcsinh(Ma / e), np.log(2.0 * Ma / e + 1.8))
+    small = Ma < 6.0 * e
+    Ms = np.where(small, Ma, 0.0)  # keeps |M| / (e - 1) finite where it is not used
+    upper = np.minimum(np.cbrt(6.0 * Ms / e), Ms / (e - 1.0))
+    H = np.where(small, upper, np.log(2.0 * Ma / e + 1.8))
     for _ in range(60):
         f = e * np.sinh(H) - H - Ma
         step = f / (e * np.cosh(H) - 1.0)
