@@ -101,6 +101,14 @@ def _norm(a):
     return np.sqrt(_dot(a, a))
 
 
+def cross(a, b):
+    """Cross product of (..., 3) arrays (np.cross without its axis bookkeeping, which costs
+    more than the arithmetic for a single vector)."""
+    a0, a1, a2 = a[..., 0], a[..., 1], a[..., 2]
+    b0, b1, b2 = b[..., 0], b[..., 1], b[..., 2]
+    return np.stack([a1 * b2 - a2 * b1, a2 * b0 - a0 * b2, a0 * b1 - a1 * b0], axis=-1)
+
+
 def orbit_kind(e, i_rad):
     """Name the singular case the conventions apply to.
 
@@ -155,10 +163,12 @@ def rv_to_elements(r_m, v_m_s, mu_m3_s2: float) -> Elements:
         raise ValueError("position and velocity must each have three components")
     if not (np.all(np.isfinite(r)) and np.all(np.isfinite(v))):
         raise ValueError("state holds a non-finite number")
+    if r.shape == (3,) and v.shape == (3,):
+        return _rv_to_elements_one(r.tolist(), v.tolist(), float(mu_m3_s2))
     rmag = _norm(r)
     if np.any(rmag <= 0.0):
         raise ValueError("position is at the body's centre")
-    h = np.cross(r, v)
+    h = cross(r, v)
     hmag = _norm(h)
     if np.any(hmag <= 1e-12 * rmag * np.maximum(_norm(v), 1e-300)):
         raise ValueError("velocity is along the radius: rectilinear motion has no orbit plane")
@@ -187,9 +197,9 @@ def rv_to_elements(r_m, v_m_s, mu_m3_s2: float) -> Elements:
 
     # Periapsis direction; on a circular orbit the node (or x axis) stands in for it.
     e_hat = np.where(circular[..., None], n_hat, e_vec / np.where(e > 0.0, e, 1.0)[..., None])
-    argp = np.arctan2(_dot(h_hat, np.cross(n_hat, e_hat)), _dot(n_hat, e_hat))
+    argp = np.arctan2(_dot(h_hat, cross(n_hat, e_hat)), _dot(n_hat, e_hat))
     argp = np.where(circular, 0.0, argp)
-    nu = np.arctan2(_dot(h_hat, np.cross(e_hat, r)), _dot(e_hat, r))
+    nu = np.arctan2(_dot(h_hat, cross(e_hat, r)), _dot(e_hat, r))
 
     def out(x):
         x = np.asarray(x, dtype=float)
@@ -203,6 +213,55 @@ def rv_to_elements(r_m, v_m_s, mu_m3_s2: float) -> Elements:
         argp_rad=out(mod_2pi(argp)),
         nu_rad=out(mod_2pi(nu)),
     )
+
+
+def _wrap(x: float) -> float:
+    y = math.fmod(x, TWO_PI)
+    if y < 0.0:
+        y += TWO_PI
+    return 0.0 if y >= TWO_PI else y
+
+
+def _rv_to_elements_one(r, v, mu: float) -> Elements:
+    """Scalar twin of :func:`rv_to_elements` (same formulas and conventions, plain floats)."""
+    x, y, z = r
+    vx, vy, vz = v
+    rmag = math.sqrt(x * x + y * y + z * z)
+    if rmag <= 0.0:
+        raise ValueError("position is at the body's centre")
+    hx, hy, hz = y * vz - z * vy, z * vx - x * vz, x * vy - y * vx
+    hmag = math.sqrt(hx * hx + hy * hy + hz * hz)
+    v2 = vx * vx + vy * vy + vz * vz
+    if hmag <= 1e-12 * rmag * max(math.sqrt(v2), 1e-300):
+        raise ValueError("velocity is along the radius: rectilinear motion has no orbit plane")
+    rv = x * vx + y * vy + z * vz
+    k = v2 - mu / rmag
+    ex, ey, ez = (k * x - rv * vx) / mu, (k * y - rv * vy) / mu, (k * z - rv * vz) / mu
+    e = math.sqrt(ex * ex + ey * ey + ez * ez)
+    if abs(e - 1.0) < PARABOLIC_BAND:
+        raise ValueError("orbit is parabolic (e = 1): no semi-major axis")
+    a = -mu / (2.0 * (0.5 * v2 - mu / rmag))
+    hhx, hhy, hhz = hx / hmag, hy / hmag, hz / hmag
+    i = math.atan2(math.hypot(hx, hy), hz)
+    equatorial = i < EQUATORIAL_I_RAD or i > math.pi - EQUATORIAL_I_RAD
+    circular = e < CIRCULAR_E
+    if equatorial:
+        nx, ny, nz = 1.0, 0.0, 0.0
+        raan = 0.0
+    else:
+        nm = math.hypot(hx, hy)
+        nx, ny, nz = -hy / nm, hx / nm, 0.0
+        raan = math.atan2(ny, nx)
+    if circular:
+        px, py, pz = nx, ny, nz
+        argp = 0.0
+    else:
+        px, py, pz = ex / e, ey / e, ez / e
+        cx, cy, cz = ny * pz - nz * py, nz * px - nx * pz, nx * py - ny * px
+        argp = math.atan2(hhx * cx + hhy * cy + hhz * cz, nx * px + ny * py + nz * pz)
+    cx, cy, cz = py * z - pz * y, pz * x - px * z, px * y - py * x
+    nu = math.atan2(hhx * cx + hhy * cy + hhz * cz, px * x + py * y + pz * z)
+    return Elements(a_m=a, e=e, i_rad=i, raan_rad=_wrap(raan), argp_rad=_wrap(argp), nu_rad=_wrap(nu))
 
 
 def elements_to_rv(el: Elements, mu_m3_s2: float):

@@ -45,6 +45,14 @@ def secular_rates(a_m, e, i_rad, body: Body):
     ----------
     Vallado (2013), eqs. 9-41 to 9-43.
     """
+    if all(isinstance(q, float) for q in (a_m, e, i_rad)):  # plain floats: no numpy overhead
+        if a_m <= 0.0 or e >= 1.0:
+            raise ValueError("orbit is hyperbolic: J2 secular rates need a closed orbit")
+        n = math.sqrt(body.mu_m3_s2 / a_m ** 3)
+        k = n * body.j2 * (body.radius_m / (a_m * (1.0 - e * e))) ** 2
+        s2 = math.sin(i_rad) ** 2
+        return (-1.5 * k * math.cos(i_rad), 0.75 * k * (4.0 - 5.0 * s2),
+                n + 0.75 * k * math.sqrt(1.0 - e * e) * (2.0 - 3.0 * s2))
     a = np.asarray(a_m, dtype=float)
     e = np.asarray(e, dtype=float)
     i = np.asarray(i_rad, dtype=float)

@@ -34,7 +34,7 @@ import numpy as np
 
 from .bodies import Body, check_model
 from .constants import CIRCULAR_E, EQUATORIAL_I_RAD
-from .elements import Elements, rv_to_elements
+from .elements import Elements, cross, rv_to_elements
 from .j2 import secular_rates
 from .kepler import TWO_PI, mean_motion, mean_to_true, true_to_mean, wrap_2pi, wrap_pi
 
@@ -158,14 +158,74 @@ def mean_orbit(r_m, v_m_s, body: Body, model: str) -> MeanOrbit:
                          float(_lambda(osc)), 0.0, 0.0, n)
     if osc.periapsis_radius_m <= body.radius_m:
         raise ValueError("orbit intersects the body: periapsis is below the surface")
-    from .flight import fly
+    mean, _, _ = _averaged(r, v, body, model)
+    return mean
 
-    _, _, lam_dot0 = _rates(osc.a_m, osc.e, osc.i_rad, body)
-    window0 = TWO_PI / lam_dot0
-    _, sol = fly(np.concatenate([r, v, [1.0]]), 1.02 * window0, body, model, dense=True)
-    first = _average(sol, window0, lam_dot0, body)
-    _, _, lam_dot1 = _rates(first.a_m, first.e, first.i_rad, body)
-    return _average(sol, TWO_PI / lam_dot1, lam_dot1, body)
+
+def mean_orbit_samples(r_m, v_m_s, body: Body, model: str):
+    """Like :func:`mean_orbit`, also returning the flown revolution it averaged.
+
+    Returns
+    -------
+    mean : MeanOrbit
+    times_s : ndarray, shape (MEAN_SAMPLES,)
+        Sample times from the start, s (``None`` under ``"two-body"``).
+    states : ndarray, shape (MEAN_SAMPLES, 7)
+        Flown states (r, v, unit mass) at those times (``None`` under ``"two-body"``).
+    """
+    check_model(model, body)
+    if model == "two-body":
+        return mean_orbit(r_m, v_m_s, body, model), None, None
+    r = np.asarray(r_m, dtype=float)
+    v = np.asarray(v_m_s, dtype=float)
+    osc = rv_to_elements(r, v, body.mu_m3_s2)
+    if osc.e >= 1.0:
+        raise ValueError("orbit is hyperbolic: no mean elements, no apoapsis or period")
+    if osc.periapsis_radius_m <= body.radius_m:
+        raise ValueError("orbit intersects the body: periapsis is below the surface")
+    return _averaged(r, v, body, model)
+
+
+def predicted_mean_a(r_m, v_m_s, body: Body) -> float:
+    """First-order estimate of the orbit-averaged semi-major axis (m) from one J2 state.
+
+    The J2 problem conserves the total energy v^2/2 - mu/r + mu J2 R^2 P2(sin phi) / r^3, so
+    1/a_osc = const + 2 J2 R^2 P2(sin phi) / r^3; averaging over a revolution replaces the last
+    term by its mean, (1 - e^2)^(-3/2) (3/4 sin^2 i - 1/2) / a^3.  Used to choose the averaging
+    window before flying it.
+    """
+    r = np.asarray(r_m, dtype=float)
+    v = np.asarray(v_m_s, dtype=float)
+    osc = rv_to_elements(r, v, body.mu_m3_s2)
+    rn = float(np.linalg.norm(r))
+    sin_phi = float(r[2]) / rn
+    p2 = 1.5 * sin_phi * sin_phi - 0.5
+    a = osc.a_m
+    mean_term = (0.75 * math.sin(osc.i_rad) ** 2 - 0.5) * (1.0 - osc.e ** 2) ** -1.5 / a ** 3
+    inv_a = 1.0 / a - 2.0 * body.j2 * body.radius_m ** 2 * (p2 / rn ** 3 - mean_term)
+    return 1.0 / inv_a
+
+
+def _averaged(r, v, body, model):
+    from .flight import fly_samples
+
+    osc = rv_to_elements(r, v, body.mu_m3_s2)
+    a_guess = predicted_mean_a(r, v, body)
+    _, _, lam_dot = _rates(a_guess, osc.e, osc.i_rad, body)
+    y0 = np.concatenate([r, v, [1.0]])
+    for _ in range(3):
+        window = TWO_PI / lam_dot
+        times = np.arange(MEAN_SAMPLES) * (window / MEAN_SAMPLES)
+        states = fly_samples(y0, times, body, model)
+        mean = _average(times, states, window, lam_dot, body)
+        _, _, lam_dot_new = _rates(mean.a_m, mean.e, mean.i_rad, body)
+        # a window off by a fraction x leaves about x times the short-period amplitude (~6 km
+        # in LEO) in the averages: 2e-5 keeps that under 0.15 m
+        converged = abs(lam_dot_new / lam_dot - 1.0) < 2e-5
+        lam_dot = lam_dot_new
+        if converged:
+            break
+    return mean, times, states
 
 
 def _rates(a_m, e, i_rad, body):
@@ -178,37 +238,53 @@ def _rates(a_m, e, i_rad, body):
     return raan_dot, argp_dot, argp_dot + m_dot
 
 
-def _average(sol, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
-    t = np.arange(MEAN_SAMPLES) * (window_s / MEAN_SAMPLES)
-    y = sol(t)
-    r = y[:3].T
-    v = y[3:6].T
-    osc = rv_to_elements(r, v, body.mu_m3_s2)
-    a = float(np.mean(osc.a_m))
-    h = np.cross(r, v)
-    h_hat = np.mean(h / np.linalg.norm(h, axis=1)[:, None], axis=0)
-    h_hat /= np.linalg.norm(h_hat)
+def _average(t, y, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
+    """Mean orbit from states ``y`` (n, >=6) sampled at times ``t`` over one window.
+
+    Written out component by component: the per-sample osculating quantities needed are a, the
+    unit angular momentum, the eccentricity vector and lambda = u - (nu - M), with u measured
+    from each sample's own node (Vallado 2013, eqs. 2-82 to 2-88 in vector form).
+    """
+    mu = body.mu_m3_s2
+    x, yy, z, vx, vy, vz = (y[:, k] for k in range(6))
+    r = np.sqrt(x * x + yy * yy + z * z)
+    v2 = vx * vx + vy * vy + vz * vz
+    rv = x * vx + yy * vy + z * vz
+    a = float(np.mean(1.0 / (2.0 / r - v2 / mu)))
+    hx, hy, hz = yy * vz - z * vy, z * vx - x * vz, x * vy - yy * vx
+    hm = np.sqrt(hx * hx + hy * hy + hz * hz)
+    h_hat = np.array([np.mean(hx / hm), np.mean(hy / hm), np.mean(hz / hm)])
+    h_hat /= math.sqrt(float(h_hat @ h_hat))
     i = math.atan2(math.hypot(h_hat[0], h_hat[1]), h_hat[2])
     equatorial = i < EQUATORIAL_I_RAD or i > math.pi - EQUATORIAL_I_RAD
     if equatorial:
         n_hat = np.array([1.0, 0.0, 0.0])
         raan_mid = 0.0
     else:
-        n_hat = np.array([-h_hat[1], h_hat[0], 0.0])
-        n_hat /= np.linalg.norm(n_hat)
+        n_hat = np.array([-h_hat[1], h_hat[0], 0.0]) / math.hypot(h_hat[0], h_hat[1])
         raan_mid = math.atan2(n_hat[1], n_hat[0])
-    rmag = np.linalg.norm(r, axis=1)
-    e_vec = ((np.sum(v * v, axis=1) - body.mu_m3_s2 / rmag)[:, None] * r
-             - np.sum(r * v, axis=1)[:, None] * v) / body.mu_m3_s2
-    e_mean = np.mean(e_vec, axis=0)
-    m_hat = np.cross(h_hat, n_hat)
+    k = v2 - mu / r
+    ex_s, ey_s, ez_s = (k * x - rv * vx) / mu, (k * yy - rv * vy) / mu, (k * z - rv * vz) / mu
+    e_mean = np.array([np.mean(ex_s), np.mean(ey_s), np.mean(ez_s)])
+    m_hat = np.array([h_hat[1] * n_hat[2] - h_hat[2] * n_hat[1], h_hat[2] * n_hat[0] - h_hat[0] * n_hat[2],
+                      h_hat[0] * n_hat[1] - h_hat[1] * n_hat[0]])
     ex, ey = float(e_mean @ n_hat), float(e_mean @ m_hat)
     e = math.hypot(ex, ey)
     circular = e < CIRCULAR_E
     argp_mid = 0.0 if circular else math.atan2(ey, ex)
-    lam_osc = _lambda(osc)
+    # osculating lambda of each sample: u from its own node, minus (nu - M)
+    if equatorial:
+        u = np.arctan2((hz * yy - hy * z) / hm, x)
+    else:
+        u = np.arctan2(z * hm, hx * yy - hy * x)
+    e_s = np.sqrt(ex_s * ex_s + ey_s * ey_s + ez_s * ez_s)
+    er = ex_s * x + ey_s * yy + ez_s * z
+    ev = ex_s * vx + ey_s * vy + ez_s * vz
+    nu = np.arctan2((er * rv - ev * r * r) / hm, er * r)
+    E = 2.0 * np.arctan2(np.sqrt(1.0 - e_s) * np.sin(0.5 * nu), np.sqrt(1.0 + e_s) * np.cos(0.5 * nu))
+    lam_osc = u - nu + (E - e_s * np.sin(E))
     ref = float(lam_osc[0])
-    dev = np.asarray(wrap_pi(lam_osc - lam_dot * t - ref))
+    dev = np.mod(lam_osc - lam_dot * t - ref + math.pi, TWO_PI) - math.pi
     lam0 = ref + float(np.mean(dev))
     raan_dot, argp_dot, _ = _rates(a, e, i, body)
     half = 0.5 * window_s

@@ -48,14 +48,16 @@ from .elements import rv_to_elements
 from .flight import Thrust, fly
 from .impulsive import apsis_burn_dv, opposite_apsis_after, vis_viva_speed
 from .kepler import TWO_PI, propagate_kepler
-from .mean import MeanOrbit, mean_orbit
+from .mean import MeanOrbit, mean_orbit_samples
 from .scenario import Scenario, Target
 
 #: Mean eccentricity below which a start orbit counts as circular for planning (its first burn
 #: goes at the earliest opportunity; in LEO this is an apsis difference under ~1.4 km).
 CIRCULAR_START_E = 1e-4
-#: How close the flown orbit must come to each burn's goal radius, m.
+#: How close the flown orbit must come to the goal radius of the last burn of a leg, m.
 GOAL_TOLERANCE_M = 1.0
+#: ... and to the intermediate goals of a split leg (the last burn trims), m.
+INTERMEDIATE_TOLERANCE_M = 50.0
 #: How close the final orbit must come to the target apsides, m.
 TARGET_TOLERANCE_M = 50.0
 #: Fraction of a vehicle limit the impulsive estimate may use when choosing N.
@@ -113,6 +115,7 @@ class PlannedBurn:
     state_after: tuple
     centre_direction: tuple
     placement: str
+    after_radius_at_burn_point_m: float = 0.0
 
     @property
     def finite_loss_m_s(self) -> float:
@@ -264,24 +267,38 @@ class _Flight:
         y1, _ = fly(y, dt_s, self.body, self.model)
         return y1
 
-    def coast_dense(self, y, dt_s: float):
-        """Callable state(t) for t in [0, dt_s] (t from the start)."""
-        if self.model == "two-body":
-            y = np.array(y, dtype=float)
-
-            def at(t):
-                r, v = propagate_kepler(y[:3], y[3:6], float(t), self.body.mu_m3_s2)
-                return np.concatenate([r, v, [y[6]]])
-            return at
-        _, sol = fly(y, max(dt_s, 1e-3), self.body, self.model, dense=True)
-        return lambda t: np.asarray(sol(float(t)), dtype=float)
-
     def burn(self, y, duration_s: float, thrust: Thrust):
         y1, _ = fly(y, duration_s, self.body, self.model, thrust=thrust)
         return y1
 
-    def mean(self, y) -> MeanOrbit:
-        return mean_orbit(y[:3], y[3:6], self.body, self.model)
+    def mean(self, y):
+        """(mean orbit, flown revolution samples or None) of a state."""
+        mean, times, states = mean_orbit_samples(y[:3], y[3:6], self.body, self.model)
+        return mean, (None if times is None else (times, states))
+
+    def coast_from(self, snap: "_Snapshot", t_s: float):
+        """State at ``t_s``, starting from the latest stored sample of ``snap`` before it."""
+        y, t0 = snap.y, snap.t_s
+        if snap.samples is not None and t_s > t0:
+            times, states = snap.samples
+            k = int(np.searchsorted(times, t_s - t0, side="right")) - 1
+            if k > 0:
+                y = np.concatenate([states[k, :6], [snap.y[6]]])
+                t0 = t0 + float(times[k])
+        return self.coast(y, t_s - t0)
+
+
+def _osculating_mean(y, body: Body) -> MeanOrbit:
+    """Two-body mean orbit (the osculating one, with its mean motion)."""
+    from .mean import mean_orbit
+
+    return mean_orbit(y[:3], y[3:6], body, "two-body")
+
+
+def _osculating(y, mu: float) -> MeanOrbit:
+    """The osculating conic of a state in MeanOrbit form (for radii toward a direction)."""
+    el = rv_to_elements(y[:3], y[3:6], mu)
+    return MeanOrbit(el.a_m, el.e, el.i_rad, el.raan_rad, el.argp_rad, 0.0, 0.0, 0.0, 1.0)
 
 
 @dataclass
@@ -365,7 +382,7 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     osc0 = rv_to_elements(y0[:3], y0[3:6], body.mu_m3_s2)
     if osc0.e >= 1.0:
         raise ValueError("orbit is hyperbolic: no apoapsis; the planner needs a closed orbit")
-    mean0 = fl.mean(y0)
+    mean0, samples0 = fl.mean(y0)
     if mean0.periapsis_radius_m <= body.radius_m:
         raise ValueError("orbit intersects the body: periapsis is below the surface")
     circular = mean0.e < CIRCULAR_START_E
@@ -373,7 +390,7 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     earliest = sc.epoch_s + sc.options.lead_time_s if earliest_s is None else earliest_s
     warnings: list[str] = []
     state = _Campaign(sc, fl, engine, veh, warnings, earliest)
-    burns = state.fly_legs(legs, y0, sc.epoch_s, mean0, circular)
+    burns = state.fly_legs(legs, _Snapshot(y0, sc.epoch_s, mean0, samples0), circular)
     final_y, final_mean = state.final_y, state.final_mean
     # Propellant book-keeping.
     used = sum(b.propellant_kg for b in burns)
@@ -451,6 +468,7 @@ class _Snapshot:
     y: np.ndarray
     t_s: float
     mean: MeanOrbit
+    samples: tuple | None = None  # (times from t_s, states) of the revolution after t_s
 
 
 class _Campaign:
@@ -468,11 +486,12 @@ class _Campaign:
         self.dry_floor = veh.dry_mass_kg + veh.unusable_kg
         self.limit_s = veh.max_burn_duration_s
         self.limit_arc = veh.max_burn_arc_rad
+        self._offsets: dict = {}
+        self._warm: dict = {}
 
     # -- legs ------------------------------------------------------------------------------
-    def fly_legs(self, legs, y0, t0, mean0, circular):
-        self._check_safe(mean0, "the current orbit")
-        snap = _Snapshot(np.asarray(y0, float), t0, mean0)
+    def fly_legs(self, legs, snap: "_Snapshot", circular):
+        self._check_safe(snap.mean, "the current orbit")
         if not legs:
             self.final_y, self.final_mean = snap.y, snap.mean
             self.warnings.append("the orbit already meets the target: no burn is needed")
@@ -481,6 +500,8 @@ class _Campaign:
         snapshots: list[_Snapshot] = []
         for g, leg in enumerate(legs):
             group, group_snaps, snap = self._fly_leg(g, leg, snap, circular and g == 0)
+            if g == len(legs) - 2 and not self.ran_dry:
+                group, group_snaps, snap = self._anticipate(legs, group, group_snaps, snap)
             burns.extend(group)
             snapshots.extend(group_snaps)
             if self.ran_dry:
@@ -517,11 +538,47 @@ class _Campaign:
         for k, goal in enumerate(goals):
             placement = "any" if (k == 0 and circular) else later
             snaps.append(snap)
-            burn, snap = self._fly_burn(g, placement, goal, leg.sense, snap)
+            tol = GOAL_TOLERANCE_M if k == len(goals) - 1 else INTERMEDIATE_TOLERANCE_M
+            burn, snap = self._fly_burn(g, placement, goal, leg.sense, snap, tol)
             burns.append(burn)
             if self.ran_dry:
                 break
         return burns, snaps, snap
+
+    def _anticipate(self, legs, group, snaps, snap):
+        """Re-aim the last burn of the second-last leg so that the last leg's finite burns,
+        which move the radius of their burn point a little, leave it at the target.
+
+        Each finite tangential burn centred on an apsis moves that apsis by close to
+        c * sense * dv * arc^2 (a second-order effect of the arc, like the cosine loss); c is
+        measured on this leg's own burns and applied to the last leg's estimated burns.
+        """
+        coef = []
+        for b, pre in zip(group, snaps):
+            if b.arc_rad > 1e-6 and b.dv_m_s > 0.0:
+                before = _radius_toward(pre.mean, b.centre_direction)
+                coef.append((b.after_radius_at_burn_point_m - before)
+                            / (b.sense * b.dv_m_s * b.arc_rad ** 2))
+        if not coef:
+            return group, snaps, snap
+        c = float(np.mean(coef))
+        last = legs[-1]
+        mu = self.sc.body.mu_m3_s2
+        r_b, r_o = _leg_radii(last, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
+        dv_last = abs(apsis_burn_dv(r_b, r_o, last.goal_radius_m, mu))
+        n = self._split_count(snap, dv_last, r_b)
+        m = float(snap.y[6])
+        arc = self.engine.duration_for_dv(m, dv_last / n) * vis_viva_speed(r_b, snap.mean.a_m, mu) / r_b
+        drift = c * last.sense * dv_last * arc ** 2
+        if abs(drift) < 0.5 * TARGET_TOLERANCE_M:
+            return group, snaps, snap
+        prev, restart = group[-1], snaps[-1]
+        history = self._offsets.get((prev.leg, prev.placement))
+        if history and len(history) >= 2:
+            history[-2:] = [history[-1], history[-1]]  # same pass again: reuse its offset
+        new_prev, snap = self._fly_burn(prev.leg, prev.placement, legs[-2].goal_radius_m - drift,
+                                        prev.sense, restart)
+        return group[:-1] + [new_prev], snaps, snap
 
     def _trim(self, legs, burns, snapshots, snap):
         """Iterate the goal of the second-last leg's last burn until the final orbit's radius at
@@ -558,7 +615,8 @@ class _Campaign:
             t_c += period
         return t_c
 
-    def _fly_burn(self, g: int, placement: str, goal: float, sense: int, snap: _Snapshot):
+    def _fly_burn(self, g: int, placement: str, goal: float, sense: int, snap: _Snapshot,
+                  tolerance_m: float = GOAL_TOLERANCE_M):
         body, eng, fl = self.sc.body, self.engine, self.fl
         mu = body.mu_m3_s2
         m0 = float(snap.y[6])
@@ -577,7 +635,7 @@ class _Campaign:
         t_c = self._centre_time(placement, snap, t_pre0)
         pad = 0.5 * t_pre0 + 1.0
         t_anchor = max(snap.t_s, t_c - t_pre0 - pad)
-        y_anchor = fl.coast(snap.y, t_anchor - snap.t_s)
+        y_anchor = fl.coast_from(snap, t_anchor)
         y_centre = fl.coast(y_anchor, t_c - t_anchor)
         centre_dir = _unit(y_centre[:3])
         if placement == "any":
@@ -594,44 +652,108 @@ class _Campaign:
 
         cache = {}
 
-        def evaluate(duration):
+        def trial(duration):
+            """Fly the burn for ``duration`` from the right ignition: (duration, t_ign, y_ign, y_cut)."""
             duration = float(min(max(duration, 1e-3), d_max))
-            if duration in cache:
-                return cache[duration]
-            if placement == "any":  # no apsis to centre on: ignite at the earliest moment
-                t_ign = max(snap.t_s, self.earliest)
-            else:
-                t_ign = t_c - eng.pre_apsis_time(m0, duration)
-            y_ign = fl.coast(y_anchor, t_ign - t_anchor) if t_ign >= t_anchor else fl.coast(snap.y, t_ign - snap.t_s)
-            y_cut = fl.burn(y_ign, duration, thrust)
-            m_after = fl.mean(y_cut)
-            miss = _radius_toward(m_after, -centre_dir) - goal
-            cache[duration] = (miss, t_ign, y_ign, y_cut, m_after, duration)
+            if duration not in cache:
+                if placement == "any":  # no apsis to centre on: ignite at the earliest moment
+                    t_ign = max(snap.t_s, self.earliest)
+                else:
+                    t_ign = t_c - eng.pre_apsis_time(m0, duration)
+                y_ign = (fl.coast(y_anchor, t_ign - t_anchor) if t_ign >= t_anchor
+                         else fl.coast(snap.y, t_ign - snap.t_s))
+                cache[duration] = (duration, t_ign, y_ign, fl.burn(y_ign, duration, thrust))
             return cache[duration]
 
-        # Newton step from the impulsive slope, then secant steps.
+        def osc_radius(duration):
+            return _radius_toward(_osculating(trial(duration)[3], mu), -centre_dir)
+
+        full_cache = {}
+
+        def full(duration):
+            """Mean orbit after the burn: (true miss, offset mean - osculating, mean, samples)."""
+            duration = trial(duration)[0]
+            if duration not in full_cache:
+                mean_after, samples = fl.mean(trial(duration)[3])
+                r_mean = _radius_toward(mean_after, -centre_dir)
+                full_cache[duration] = (r_mean - goal, r_mean - osc_radius(duration), mean_after, samples)
+            return full_cache[duration]
+
+        # Secant iteration on the osculating radius plus a model of the (mean - osculating)
+        # offset, linear in the duration (short-period terms change little between trials),
+        # checked against the full mean orbit, whose offset then corrects the model.  The model
+        # starts from the previous passes of this apsis (extrapolated) or, on a first pass, from
+        # the unburned orbit at the burn point.  Under "two-body" the offset is 0.
         eps = max(1e-3 * dv_imp, 1e-3)
         slope_dv = (opposite_apsis_after(r_b, r_o, sense * (dv_imp + eps), mu)
                     - opposite_apsis_after(r_b, r_o, sense * dv_imp, mu)) / eps
         slope = slope_dv * eng.thrust_n / m0 * sense  # metres of goal radius per second of burn
-        x0 = d0
-        f0 = evaluate(x0)
-        best = f0
-        x1 = x0 - f0[0] / slope if slope != 0.0 else x0 * 1.01
-        for _ in range(12):
-            if abs(best[0]) <= GOAL_TOLERANCE_M:
+        two_body = self.sc.model == "two-body"
+        key = (g, placement)
+        history = self._offsets.setdefault(key, [])
+        warm = self._warm.get(key)
+        d_imp = eng.duration_for_dv(m0, dv_imp)
+        if warm is not None:  # the previous pass of this apsis knows the finite-burn stretch
+            d0 = min(max(d_imp * warm[0], 1e-3), d_max)
+            slope = warm[1] if warm[1] * slope > 0.0 else slope
+        k_offset = warm[2] if warm is not None else 0.0
+        if two_body:
+            offset = 0.0
+        elif len(history) >= 2:  # the offset drifts smoothly from pass to pass: extrapolate
+            offset = 2.0 * history[-1] - history[-2]
+        elif history:
+            offset = history[-1]
+        else:
+            offset = full(d0)[1]
+        model = [offset, d0, k_offset]  # offset(D) = model[0] + model[2] (D - model[1])
+
+        def approx_miss(duration):
+            return osc_radius(duration) + model[0] + model[2] * (duration - model[1]) - goal
+
+        x = d0
+        best_x, best_miss = d0, math.inf
+        measured_slope = None
+        fulls = []
+        for _outer in range(5):
+            x0, f0 = x, approx_miss(x)
+            x1 = x0 - f0 / slope if slope != 0.0 else x0 * 1.01
+            for _ in range(12):
+                if abs(f0) <= 0.3 * tolerance_m:
+                    x1 = x0
+                    break
+                x1 = min(max(x1, 1e-3), d_max)
+                f1 = approx_miss(x1)
+                if abs(f1) <= 0.3 * tolerance_m or x1 == x0:
+                    break
+                denom = f1 - f0
+                if denom != 0.0:
+                    measured_slope = denom / (x1 - x0)
+                x_next = x1 - f1 * (x1 - x0) / denom if denom != 0.0 else x1 - f1 / slope
+                x0, f0, x1 = x1, f1, x_next
+            x = min(max(x1, 1e-3), d_max)
+            if two_body:
+                miss_true = osc_radius(x) - goal
+            else:
+                miss_true, off, _, _ = full(x)
+                fulls.append((x, off))
+                if len(fulls) >= 2 and abs(fulls[-1][0] - fulls[-2][0]) > 1e-6:
+                    model[2] = (fulls[-1][1] - fulls[-2][1]) / (fulls[-1][0] - fulls[-2][0])
+                model[0], model[1] = off, x
+            if abs(miss_true) < abs(best_miss):
+                best_x, best_miss = x, miss_true
+            if abs(miss_true) <= tolerance_m or x >= d_max - 1e-9:
                 break
-            x1 = min(max(x1, 1e-3), d_max)
-            f1 = evaluate(x1)
-            if abs(f1[0]) < abs(best[0]):
-                best = f1
-            if abs(f1[0]) <= GOAL_TOLERANCE_M or x1 == x0:
-                break
-            denom = f1[0] - f0[0]
-            x_next = x1 - f1[0] * (x1 - x0) / denom if denom != 0.0 else x1 - f1[0] / slope
-            x0, f0, x1 = x1, f1, x_next
-        miss, t_ign, y_ign, y_cut, m_after, duration = best
-        if abs(miss) > GOAL_TOLERANCE_M:
+        if not two_body:
+            history.append(model[0] + model[2] * (best_x - model[1]))
+        if d_imp > 0.0:
+            self._warm[key] = (best_x / d_imp, measured_slope or slope, model[2])
+        duration, t_ign, y_ign, y_cut = trial(best_x)
+        if two_body:
+            m_after, samples = _osculating_mean(y_cut, body), None
+        else:
+            _, _, m_after, samples = full(best_x)
+        miss = best_miss
+        if abs(miss) > tolerance_m:
             if duration >= d_max - 1e-6:
                 self.ran_dry = True
                 self.warnings.append(f"propellant runs out during a burn of leg {g + 1}: its goal "
@@ -655,9 +777,10 @@ class _Campaign:
             ignition_half_duration_s=t_c - 0.5 * duration,
             state_before=tuple(map(float, y_ign)), state_after=tuple(map(float, y_cut)),
             centre_direction=tuple(map(float, centre_dir)), placement=placement,
+            after_radius_at_burn_point_m=_radius_toward(m_after, centre_dir),
         )
         self._check_safe(m_after, f"the orbit after a burn of leg {g + 1}")
-        return burn, _Snapshot(np.asarray(y_cut, float), t_ign + duration, m_after)
+        return burn, _Snapshot(np.asarray(y_cut, float), t_ign + duration, m_after, samples)
 
     # -- checks ----------------------------------------------------------------------------
     def _check_safe(self, mean: MeanOrbit, what: str) -> None:
