@@ -7,9 +7,7 @@ reducer, and appends it only if it fits; the view is always derived from the eve
 
 from __future__ import annotations
 
-import csv
 import math
-import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -18,7 +16,7 @@ from mechanics.session.events import (BurnRecorded, EntryRetracted, GaugeReading
                                       from_payload, to_payload)
 from mechanics.session.journal import Journal, JournalError
 from mechanics.session.reducer import (SessionState, SessionView, apply, next_burn_number,
-                                       planned_to_dict, view)
+                                       planned_to_dict, replay, view)
 
 from .timeutil import format_utc
 
@@ -67,16 +65,20 @@ class Session:
 
     def reload(self) -> None:
         """Replay the whole journal (rows that do not fit are kept aside as rejected)."""
-        state = SessionState()
         rejected = []
         written = {}
+        kinds = {}
+        decoded = []
         for rec in self.journal.records():
             written[rec.seq] = rec.written_utc
+            kinds[rec.seq] = rec.kind
             try:
-                event = from_payload(rec.kind, rec.payload)
-                state = apply(state, rec.seq, event)
+                decoded.append((rec.seq, from_payload(rec.kind, rec.payload)))
             except ValueError as exc:
                 rejected.append(Rejected(rec.seq, rec.kind, str(exc)))
+        misfits: list = []
+        state = replay(decoded, misfits)
+        rejected += [Rejected(seq, kinds[seq], reason) for seq, reason in misfits]
         if not state.entries:
             raise ValueError(f"{self.journal.path}: session has no scenario entry")
         self.state, self.rejected, self.written = state, rejected, written
@@ -179,41 +181,17 @@ def export_csv(v: SessionView, folder) -> list[Path]:
     folder = Path(folder)
     if not folder.is_dir():
         raise ValueError(f"{folder}: export folder does not exist")
+    from .exports import ACTUAL_COLUMNS, PLANNED_COLUMNS, actual_cells, headers, planned_cells, write_csv
+
     R = v.scenario.body.radius_m
     written = []
 
     def out(name, header, rows):
-        path = folder / name
-        if path.is_symlink():
-            raise ValueError(f"{path}: is a link; refusing to write through it")
-        tmp = folder / f".{name}.tmp"
-        if tmp.is_symlink():
-            raise ValueError(f"{tmp}: is a link; refusing to write through it")
-        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0), 0o644)
-        with os.fdopen(fd, "w", newline="") as fh:
-            w = csv.writer(fh)
-            w.writerow(header)
-            w.writerows(rows)
-        os.replace(tmp, path)
-        written.append(path)
+        written.append(write_csv(folder, name, header, rows))
 
-    queue_rows = []
-    for row in v.rows:
-        b = row.planned
-        a = row.actual or {}
-        queue_rows.append([
-            row.index, row.status, b.apsis, format_utc(b.ignition_s), format_utc(b.cutoff_s),
-            f"{b.duration_s:.3f}", f"{b.dv_m_s:.6f}", f"{b.impulsive_dv_m_s:.6f}", f"{b.propellant_kg:.6f}",
-            f"{b.mass_before_kg:.6f}", f"{b.thrust_n:.6f}", f"{b.mdot_kg_s:.9f}",
-            f"{(b.after_periapsis_radius_m - R) / 1e3:.6f}", f"{(b.after_apoapsis_radius_m - R) / 1e3:.6f}",
-            format_utc(a["ignition_s"]) if a else "", f"{a['duration_s']:.3f}" if a else "",
-            f"{a['propellant_kg']:.6f}" if a and a.get("propellant_kg") is not None else "",
-            f"{a['dv_m_s']:.6f}" if a and a.get("dv_m_s") is not None else "",
-        ])
-    out("queue.csv", ["burn", "status", "apsis", "ignition_utc", "cutoff_utc", "duration_s", "dv_m_s",
-                      "impulsive_dv_m_s", "propellant_kg", "mass_before_kg", "thrust_N", "mdot_kg_s",
-                      "after_periapsis_alt_km", "after_apoapsis_alt_km", "actual_ignition_utc",
-                      "actual_duration_s", "actual_propellant_kg", "actual_dv_m_s"], queue_rows)
+    queue_rows = [[row.index, row.status, *planned_cells(row.planned, R), *actual_cells(row.actual)]
+                  for row in v.rows]
+    out("queue.csv", ["burn", "status", *headers(PLANNED_COLUMNS), *headers(ACTUAL_COLUMNS)], queue_rows)
     lg = v.ledger
     ledger_rows = [["loaded", f"{lg.loaded_kg:.6f}"], ["used_planned_done", f"{lg.used_planned_kg:.6f}"],
                    ["used_recorded", f"{lg.used_recorded_kg:.6f}"], ["remaining", f"{lg.remaining_kg:.6f}"],

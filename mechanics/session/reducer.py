@@ -22,6 +22,7 @@ Tsiolkovsky rocket equation (Curtis 2014, eq. 11.30) for the delivered delta-v; 
 
 from __future__ import annotations
 
+import bisect
 import json
 import math
 from dataclasses import asdict, dataclass, field, replace
@@ -50,14 +51,56 @@ class Entry:
 
 
 @dataclass(frozen=True)
+class Facts:
+    """What the validation of a new event needs, kept up to date as events are folded in.
+
+    Attributes
+    ----------
+    scenario : Scenario
+        The scenario in force (loaded one plus active target and vehicle changes).
+    next_burn : int
+        Number of the next burn to record (one past the last active burn record).
+    latest_epoch_s : float
+        Epoch of the latest known orbit (scenario, state entry or burn record).
+    recorded_kg : float
+        Propellant use recorded by active burn records (those that give it).
+    last_cutoff_s : float or None
+        Cutoff of the last active burn record.
+    """
+
+    scenario: Scenario
+    next_burn: int = 1
+    latest_epoch_s: float = -math.inf
+    recorded_kg: float = 0.0
+    last_cutoff_s: float | None = None
+
+
+def _advance(facts: Facts | None, event) -> Facts:
+    """Facts after one (valid, non-retraction) event."""
+    if isinstance(event, ScenarioLoaded):
+        sc = Scenario.from_dict(event.scenario)
+        return Facts(sc, 1, sc.epoch_s, 0.0, None)
+    if isinstance(event, TargetSet):
+        return replace(facts, scenario=replace(facts.scenario, target=Target(**event.target)
+                                               if event.target else None))
+    if isinstance(event, VehicleChanged):
+        return replace(facts, scenario=replace(facts.scenario, vehicle=Vehicle.from_dict(event.vehicle)))
+    if isinstance(event, StateEntered):
+        return replace(facts, latest_epoch_s=event.state.epoch_s)
+    if isinstance(event, BurnRecorded):
+        return replace(facts, next_burn=event.burn + 1, latest_epoch_s=event.after.epoch_s,
+                       recorded_kg=facts.recorded_kg + (event.propellant_kg or 0.0),
+                       last_cutoff_s=event.ignition_s + event.duration_s)
+    return facts
+
+
+@dataclass(frozen=True)
 class SessionState:
-    """The ordered facts of a campaign (every entry, retracted or not)."""
+    """The ordered facts of a campaign (every entry, retracted or not) and their summary."""
 
     entries: tuple = ()
-
-    @property
-    def retracted(self) -> frozenset:
-        return frozenset(e.event.entry for e in self.entries if isinstance(e.event, EntryRetracted))
+    retracted: frozenset = frozenset()
+    facts: Facts | None = None
 
     def active(self):
         """Entries in force: not retracted, and not retractions themselves."""
@@ -65,9 +108,9 @@ class SessionState:
         return [e for e in self.entries if e.seq not in gone and not isinstance(e.event, EntryRetracted)]
 
     def entry(self, seq: int) -> Entry | None:
-        for e in self.entries:
-            if e.seq == seq:
-                return e
+        k = bisect.bisect_left(self.entries, seq, key=lambda e: e.seq)
+        if k < len(self.entries) and self.entries[k].seq == seq:
+            return self.entries[k]
         return None
 
     @property
@@ -75,39 +118,24 @@ class SessionState:
         return self.entries[-1].seq if self.entries else 0
 
 
+def _summarize(entries, retracted) -> Facts:
+    facts = None
+    for e in entries:
+        if e.seq not in retracted and not isinstance(e.event, EntryRetracted):
+            facts = _advance(facts, e.event)
+    return facts
+
+
 def scenario_of(state: SessionState) -> Scenario:
     """The scenario in force: the loaded one with the active target and vehicle changes."""
-    sc = None
-    for e in state.active():
-        ev = e.event
-        if isinstance(ev, ScenarioLoaded):
-            sc = Scenario.from_dict(ev.scenario)
-        elif isinstance(ev, TargetSet):
-            sc = replace(sc, target=Target(**ev.target) if ev.target else None)
-        elif isinstance(ev, VehicleChanged):
-            sc = replace(sc, vehicle=Vehicle.from_dict(ev.vehicle))
-    if sc is None:
+    if state.facts is None:
         raise ValueError("session has no scenario")
-    return sc
+    return state.facts.scenario
 
 
 def next_burn_number(state: SessionState) -> int:
     """Number of the next burn to fly: one past the last recorded (active) burn."""
-    done = [e.event.burn for e in state.active() if isinstance(e.event, BurnRecorded)]
-    return max(done, default=0) + 1
-
-
-def _latest_epoch(state: SessionState) -> float:
-    epoch = -math.inf
-    for e in state.active():
-        ev = e.event
-        if isinstance(ev, ScenarioLoaded):
-            epoch = ev.scenario["epoch_s"]
-        elif isinstance(ev, StateEntered):
-            epoch = ev.state.epoch_s
-        elif isinstance(ev, BurnRecorded):
-            epoch = ev.after.epoch_s
-    return epoch
+    return state.facts.next_burn if state.facts else 1
 
 
 def _check_orbit(state_ev: OrbitState, sc: Scenario, what: str) -> None:
@@ -121,6 +149,53 @@ def _check_orbit(state_ev: OrbitState, sc: Scenario, what: str) -> None:
     if el.periapsis_radius_m <= sc.body.radius_m:
         raise ValueError(f"{what}: periapsis is inside the body "
                          f"({(el.periapsis_radius_m - sc.body.radius_m) / 1e3:.1f} km altitude)")
+
+
+def _check(facts: Facts | None, retracted, lookup, last_seq: int, seq: int, event) -> None:
+    """Refuse an event that does not fit the history (shared by :func:`apply` and :func:`replay`)."""
+    if seq <= last_seq:
+        raise ValueError(f"entry {seq} is out of order (last is {last_seq})")
+    if facts is None:
+        if not isinstance(event, ScenarioLoaded):
+            raise ValueError("a session starts with its scenario")
+        Scenario.from_dict(event.scenario)
+        return
+    if isinstance(event, ScenarioLoaded):
+        raise ValueError("the session already has its scenario; start a new session for another")
+    sc = facts.scenario
+    if isinstance(event, EntryRetracted):
+        target = lookup(event.entry)
+        if target is None:
+            raise ValueError(f"entry {event.entry} does not exist")
+        if isinstance(target, ScenarioLoaded):
+            raise ValueError(f"entry {event.entry} is the scenario itself and cannot be retracted")
+        if isinstance(target, EntryRetracted):
+            raise ValueError(f"entry {event.entry} is a retraction; record the fact again instead")
+        if event.entry in retracted:
+            raise ValueError(f"entry {event.entry} is already retracted")
+    elif isinstance(event, BurnRecorded):
+        if event.burn != facts.next_burn:
+            raise ValueError(f"burn {event.burn} is not the next burn to record (next is {facts.next_burn})")
+        if event.ignition_s < facts.latest_epoch_s:
+            raise ValueError("ignition is before the latest known orbit; retract that entry first "
+                             "if it was wrong")
+        if event.propellant_kg is not None and sc.vehicle is not None:
+            on_board = sc.vehicle.propellant_kg - facts.recorded_kg
+            if event.propellant_kg > on_board + 1e-9:
+                raise ValueError(f"propellant used {event.propellant_kg:.3f} kg exceeds the "
+                                 f"{on_board:.3f} kg on board")
+        _check_orbit(event.after, sc, "post-burn orbit")
+    elif isinstance(event, StateEntered):
+        _check_orbit(event.state, sc, "state")
+        if facts.last_cutoff_s is not None and event.state.epoch_s < facts.last_cutoff_s:
+            raise ValueError(f"state epoch is before burn {facts.next_burn - 1}'s cutoff; it would "
+                             "undo a recorded burn")
+    elif isinstance(event, TargetSet):
+        Target(**event.target)
+    elif isinstance(event, VehicleChanged):
+        Vehicle.from_dict(event.vehicle)
+    elif not isinstance(event, GaugeReadingTaken):
+        raise ValueError(f"unknown event {type(event).__name__}")
 
 
 def apply(state: SessionState, seq: int, event) -> SessionState:
@@ -139,67 +214,49 @@ def apply(state: SessionState, seq: int, event) -> SessionState:
     ValueError
         With the reason, for an event that does not fit (nothing is changed).
     """
-    if seq <= state.last_seq:
-        raise ValueError(f"entry {seq} is out of order (last is {state.last_seq})")
-    if not state.entries:
-        if not isinstance(event, ScenarioLoaded):
-            raise ValueError("a session starts with its scenario")
-        Scenario.from_dict(event.scenario)
-        return SessionState((Entry(seq, event),))
-    if isinstance(event, ScenarioLoaded):
-        raise ValueError("the session already has its scenario; start a new session for another")
-    sc = scenario_of(state)
+
+    def lookup(k):
+        found = state.entry(k)
+        return None if found is None else found.event
+
+    _check(state.facts, state.retracted, lookup, state.last_seq, seq, event)
+    entries = state.entries + (Entry(seq, event),)
     if isinstance(event, EntryRetracted):
-        target = state.entry(event.entry)
-        if target is None:
-            raise ValueError(f"entry {event.entry} does not exist")
-        if isinstance(target.event, ScenarioLoaded):
-            raise ValueError(f"entry {event.entry} is the scenario itself and cannot be retracted")
-        if isinstance(target.event, EntryRetracted):
-            raise ValueError(f"entry {event.entry} is a retraction; record the fact again instead")
-        if event.entry in state.retracted:
-            raise ValueError(f"entry {event.entry} is already retracted")
-    elif isinstance(event, BurnRecorded):
-        expected = next_burn_number(state)
-        if event.burn != expected:
-            raise ValueError(f"burn {event.burn} is not the next burn to record (next is {expected})")
-        latest = _latest_epoch(state)
-        if event.ignition_s < latest:
-            raise ValueError("ignition is before the latest known orbit; retract that entry first "
-                             "if it was wrong")
-        if event.propellant_kg is not None and sc.vehicle is not None:
-            on_board = _book_propellant_upper_bound(state, sc)
-            if event.propellant_kg > on_board + 1e-9:
-                raise ValueError(f"propellant used {event.propellant_kg:.3f} kg exceeds the "
-                                 f"{on_board:.3f} kg on board")
-        _check_orbit(event.after, sc, "post-burn orbit")
-    elif isinstance(event, StateEntered):
-        _check_orbit(event.state, sc, "state")
-        burns = [e.event for e in state.active() if isinstance(e.event, BurnRecorded)]
-        if burns and event.state.epoch_s < burns[-1].ignition_s + burns[-1].duration_s:
-            raise ValueError(f"state epoch is before burn {burns[-1].burn}'s cutoff; it would undo "
-                             "a recorded burn")
-    elif isinstance(event, TargetSet):
-        Target(**event.target)
-    elif isinstance(event, VehicleChanged):
-        Vehicle.from_dict(event.vehicle)
-    elif not isinstance(event, GaugeReadingTaken):
-        raise ValueError(f"unknown event {type(event).__name__}")
-    return SessionState(state.entries + (Entry(seq, event),))
+        retracted = state.retracted | {event.entry}
+        return SessionState(entries, retracted, _summarize(entries, retracted))
+    return SessionState(entries, state.retracted, _advance(state.facts, event))
 
 
-def _book_propellant_upper_bound(state: SessionState, sc: Scenario) -> float:
-    used = sum(e.event.propellant_kg or 0.0 for e in state.active() if isinstance(e.event, BurnRecorded))
-    return sc.vehicle.propellant_kg - used
+def replay(records, rejected: list | None = None) -> SessionState:
+    """State from journal records (objects with ``seq`` and ``event``, or (seq, event) pairs).
 
-
-def replay(records) -> SessionState:
-    """State from journal records (objects with ``seq`` and ``event``, or (seq, event) pairs)."""
-    state = SessionState()
+    The same checks as :func:`apply`, in one pass (linear in the number of events).  With a
+    ``rejected`` list, events that do not fit are appended to it as (seq, reason) and skipped;
+    without one, the first misfit raises ``ValueError``.
+    """
+    entries: list = []
+    events: dict = {}
+    retracted: set = set()
+    facts = None
+    last = 0
     for rec in records:
         seq, event = (rec.seq, rec.event) if hasattr(rec, "event") else rec
-        state = apply(state, seq, event)
-    return state
+        try:
+            _check(facts, retracted, events.get, last, seq, event)
+        except ValueError as exc:
+            if rejected is None:
+                raise
+            rejected.append((seq, str(exc)))
+            continue
+        entries.append(Entry(seq, event))
+        events[seq] = event
+        last = seq
+        if isinstance(event, EntryRetracted):
+            retracted.add(event.entry)
+            facts = _summarize(entries, retracted)
+        else:
+            facts = _advance(facts, event)
+    return SessionState(tuple(entries), frozenset(retracted), facts)
 
 
 # --------------------------------------------------------------------------- derived view
