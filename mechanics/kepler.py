@@ -106,26 +106,92 @@ def solve_kepler(M_rad, e):
     if np.any((e < 0.0) | (e >= 1.0) | ~np.isfinite(e)):
         raise ValueError("Kepler's elliptic equation needs 0 <= e < 1")
     M, e = np.broadcast_arrays(M, e)
-    turns = np.round(M / TWO_PI)
-    m = M - turns * TWO_PI  # in [-pi, pi]
+    if M.ndim == 0:
+        return _solve_kepler_one(float(M), float(e))
+    if M.size > _CHUNK:  # blocks that stay in cache (and out of fresh, page-faulting memory)
+        flat_M, flat_e = M.ravel(), e.ravel()
+        out = np.empty(M.size)
+        for k in range(0, M.size, _CHUNK):
+            out[k:k + _CHUNK] = _solve_kepler_block(flat_M[k:k + _CHUNK], flat_e[k:k + _CHUNK])
+        return out.reshape(M.shape)
+    return _solve_kepler_block(M, e)
+
+
+_CHUNK = 1 << 14
+
+
+def _solve_kepler_block(M, e):
+    """The vectorised solve on one block (arrays of equal shape), in-place where possible."""
+    m = np.remainder(M + math.pi, TWO_PI)
+    m -= math.pi  # in [-pi, pi)
     # Mikkola's starter.
     denom = 4.0 * e + 0.5
     alpha = (1.0 - e) / denom
     beta = 0.5 * m / denom
-    z = np.cbrt(beta + np.copysign(np.sqrt(beta * beta + alpha ** 3), beta))
-    s = np.where(z != 0.0, z - alpha / np.where(z != 0.0, z, 1.0), 0.0)
-    s = s - 0.078 * s ** 5 / (1.0 + e)
-    E = m + e * (3.0 * s - 4.0 * s ** 3)
-    for _ in range(3):
-        se, ce = np.sin(E), np.cos(E)
-        f = E - e * se - m
-        f1 = 1.0 - e * ce
-        E = E - f / (f1 - 0.5 * f * e * se / f1)
+    z = beta * beta
+    z += alpha * alpha * alpha
+    np.sqrt(z, out=z)
+    np.copysign(z, beta, out=z)
+    z += beta
+    np.cbrt(z, out=z)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s = np.where(z != 0.0, z - alpha / z, 0.0)
+    s2 = s * s
+    s -= 0.078 * s2 * s2 * s / (1.0 + e)
+    E = e * s * (3.0 - 4.0 * s * s)
+    E += m
+    # Two Halley steps take the starter's ~1e-3 rad to machine precision (cubic convergence).
+    # cos E enters only the derivative, so it comes from sin E (sign from |E| vs pi/2): a
+    # rounding error there slows nothing and cannot move the root, which is fixed by sin E.
+    for _ in range(2):
+        es = np.sin(E)
+        ec = es * es
+        np.subtract(1.0, ec, out=ec)
+        np.maximum(ec, 0.0, out=ec)
+        np.sqrt(ec, out=ec)
+        np.copysign(ec, 0.5 * math.pi - np.abs(E), out=ec)
+        es *= e
+        ec *= e
+        f = E - es
+        f -= m
+        np.subtract(1.0, ec, out=ec)  # f'
+        den = f * es
+        den /= ec
+        np.subtract(ec, 0.5 * den, out=den)
+        f /= den
+        E -= f
     res = np.abs(E - e * np.sin(E) - m)
     bad = res > KEPLER_RESIDUAL_RAD
     if np.any(bad):
         E = _kepler_newton_fallback(E, e, m, bad)
-    return _out(E + turns * TWO_PI)
+    E += M - m  # back to the turn of M
+    return E
+
+
+def _solve_kepler_one(M: float, e: float) -> float:
+    """Scalar twin of :func:`solve_kepler` (same starter, Halley steps to convergence)."""
+    turns = round(M / TWO_PI)
+    m = M - turns * TWO_PI
+    denom = 4.0 * e + 0.5
+    alpha = (1.0 - e) / denom
+    beta = 0.5 * m / denom
+    z = math.copysign(abs(beta + math.copysign(math.sqrt(beta * beta + alpha ** 3), beta)) ** (1.0 / 3.0),
+                      beta)
+    s = z - alpha / z if z != 0.0 else 0.0
+    s -= 0.078 * s ** 5 / (1.0 + e)
+    E = m + e * (3.0 * s - 4.0 * s ** 3)
+    for _ in range(50):
+        se, ce = math.sin(E), math.cos(E)
+        f = E - e * se - m
+        f1 = 1.0 - e * ce
+        step = f / (f1 - 0.5 * f * e * se / f1)
+        E -= step
+        if abs(step) < 1e-15 and abs(E - e * math.sin(E) - m) <= KEPLER_RESIDUAL_RAD:
+            break
+    else:  # pragma: no cover - Halley from Mikkola's start converges in a few steps
+        E = float(_kepler_newton_fallback(np.array([E]), np.array([e]), np.array([m]),
+                                          np.array([True]))[0])
+    return E + turns * TWO_PI
 
 
 def _kepler_newton_fallback(E, e, m, bad):
