@@ -15,7 +15,7 @@ import numpy as np
 
 from .bodies import Body
 from .elements import Elements
-from .kepler import TWO_PI, mean_motion
+from .kepler import TWO_PI, mean_motion, wrap_2pi
 
 #: Sun-synchronous node rate: 360 deg per tropical year, rad/s (common practice value; the
 #: tropical year of 365.2422 days is from memory).
@@ -97,8 +97,8 @@ def propagate_mean_elements(el: Elements, dt_s, body: Body, model: str) -> Eleme
     nu = mean_to_true(np.mod(M, TWO_PI), el.e)
     return Elements(
         el.a_m, el.e, el.i_rad,
-        np.mod(np.asarray(el.raan_rad) + np.asarray(raan_dot) * dt, TWO_PI),
-        np.mod(np.asarray(el.argp_rad) + np.asarray(argp_dot) * dt, TWO_PI),
+        wrap_2pi(np.asarray(el.raan_rad) + np.asarray(raan_dot) * dt),
+        wrap_2pi(np.asarray(el.argp_rad) + np.asarray(argp_dot) * dt),
         nu,
     )
 

@@ -316,13 +316,58 @@ def propagate_kepler(r_m, v_m_s, dt_s, mu_m3_s2: float):
     -------
     r_m, v_m_s : ndarray, shape (..., 3)
 
+    Notes
+    -----
+    The new state is f r0 + g v0 (and fdot r0 + gdot v0) with Lagrange's coefficients written
+    in the change of eccentric (or hyperbolic) anomaly, which Kepler's equation gives with
+    e cos E0 = 1 - r0/a and e sin E0 = r0.v0 / sqrt(mu a) taken from the state itself.  The
+    state stays exactly in the plane of (r0, v0), and dt = 0 returns the state unchanged, even
+    for orbits inside the circular or equatorial thresholds of the element conventions.
+
     References
     ----------
-    Vallado (2013), sec. 2.3, propagation through the mean anomaly (Algorithm 7 does the same
-    with universal variables).
+    Vallado (2013), sec. 2.3 and eq. 2-67 (f and g in the eccentric anomaly); Curtis (2014),
+    sec. 3.7, eqs. 3.69 (f and g in the universal anomaly).
     """
-    el = rv_to_elements(r_m, v_m_s, mu_m3_s2)
-    return elements_to_rv(propagate_elements_kepler(el, dt_s, mu_m3_s2), mu_m3_s2)
+    r0 = np.asarray(r_m, dtype=float)
+    v0 = np.asarray(v_m_s, dtype=float)
+    rv_to_elements(r0, v0, mu_m3_s2)  # the same refusals (rectilinear, parabolic, non-finite)
+    dt = np.asarray(dt_s, dtype=float)
+    r0n = np.sqrt(np.sum(r0 * r0, axis=-1))
+    v2 = np.sum(v0 * v0, axis=-1)
+    a = 1.0 / (2.0 / r0n - v2 / mu_m3_s2)
+    n = np.sqrt(mu_m3_s2 / np.abs(a) ** 3)
+    # e cos E0 and e sin E0 straight from the state (no periapsis direction needed, so the
+    # circular and equatorial conventions of the element set play no part here)
+    ec0 = 1.0 - r0n / a
+    es0 = np.sum(r0 * v0, axis=-1) / np.sqrt(mu_m3_s2 * np.abs(a))
+    if np.all(a > 0.0):
+        e = np.sqrt(ec0 * ec0 + es0 * es0)
+        E0 = np.arctan2(es0, ec0)
+        dE = np.asarray(solve_kepler(E0 - es0 + n * dt, e)) - E0
+        sin_d, one_minus_cos = np.sin(dE), 1.0 - np.cos(dE)
+        f = 1.0 - a / r0n * one_minus_cos
+        g = dt - (dE - sin_d) / n
+        r1 = f[..., None] * r0 + g[..., None] * v0
+        r1n = np.sqrt(np.sum(r1 * r1, axis=-1))
+        fdot = -np.sqrt(mu_m3_s2 * a) / (r1n * r0n) * sin_d
+        gdot = 1.0 - a / r1n * one_minus_cos
+    elif np.all(a < 0.0):
+        e = np.sqrt(ec0 * ec0 - es0 * es0)
+        H0 = np.arcsinh(es0 / e)
+        dH = np.asarray(solve_kepler_hyperbolic(es0 - H0 + n * dt, e)) - H0
+        sinh_d, one_minus_cosh = np.sinh(dH), 1.0 - np.cosh(dH)
+        f = 1.0 - a / r0n * one_minus_cosh
+        g = dt - (sinh_d - dH) / n
+        r1 = f[..., None] * r0 + g[..., None] * v0
+        r1n = np.sqrt(np.sum(r1 * r1, axis=-1))
+        fdot = -np.sqrt(-mu_m3_s2 * a) / (r1n * r0n) * sinh_d
+        gdot = 1.0 - a / r1n * one_minus_cosh
+    else:
+        el = rv_to_elements(r0, v0, mu_m3_s2)
+        return elements_to_rv(propagate_elements_kepler(el, dt_s, mu_m3_s2), mu_m3_s2)
+    v1 = fdot[..., None] * r0 + gdot[..., None] * v0
+    return r1, v1
 
 
 def time_to_anomaly(el: Elements, nu_target_rad, mu_m3_s2: float):

@@ -113,9 +113,9 @@ class MeanOrbit:
         """The mean orbit ``dt_s`` seconds later (secular drift only)."""
         return MeanOrbit(
             self.a_m, self.e, self.i_rad,
-            float(np.mod(self.raan_rad + self.raan_dot * dt_s, TWO_PI)),
-            float(np.mod(self.argp_rad + self.argp_dot * dt_s, TWO_PI)),
-            float(np.mod(self.lam_rad + self.lam_dot * dt_s, TWO_PI)),
+            wrap_2pi(self.raan_rad + self.raan_dot * dt_s),
+            wrap_2pi(self.argp_rad + self.argp_dot * dt_s),
+            wrap_2pi(self.lam_rad + self.lam_dot * dt_s),
             self.raan_dot, self.argp_dot, self.lam_dot,
         )
 
