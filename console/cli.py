@@ -41,12 +41,42 @@ def cmd_plan(args) -> int:
     from mechanics.planner import plan_campaign
 
     from .report import dumps, plan_json, plan_text
-    from .scenario_file import load_scenario
+    from .scenario_file import load_scenario_with_state
 
-    sc = load_scenario(args.scenario)
+    sc, st = load_scenario_with_state(args.scenario)
+    _check_plan_outputs(args)
     plan = plan_campaign(sc)
     print(dumps(plan_json(plan, sc)) if args.json else plan_text(plan, sc))
+    for note in st.notes:
+        print(f"burndesk: note: {note}", file=sys.stderr)
+    _write_plan_outputs(args, plan, sc, st)
     return EXIT_OK if plan.feasible else EXIT_INFEASIBLE
+
+
+def _check_plan_outputs(args) -> None:
+    """Refuse before planning what would be refused after it (an existing OPM, a missing folder)."""
+    from pathlib import Path
+
+    opm, folder = getattr(args, "opm", None), getattr(args, "csv", None)
+    if opm and Path(opm).exists() and not getattr(args, "force", False):
+        raise ValueError(f"{opm}: already exists; refusing to overwrite it (use --force)")
+    if folder and not Path(folder).is_dir():
+        raise ValueError(f"{folder}: export folder does not exist")
+
+
+def _write_plan_outputs(args, plan, sc, st) -> None:
+    """``--opm OUT.opm`` and ``--csv DIR``; what was written is named on stderr (stdout keeps
+    the table or the JSON)."""
+    if getattr(args, "opm", None):
+        from .opm import plan_to_opm, save_text
+
+        path = save_text(plan_to_opm(plan, sc, source=st.opm), args.opm, force=getattr(args, "force", False))
+        print(f"burndesk: wrote {path}", file=sys.stderr)
+    if getattr(args, "csv", None):
+        from .exports import export_plan_csv
+
+        for path in export_plan_csv(plan, args.csv):
+            print(f"burndesk: wrote {path}", file=sys.stderr)
 
 
 def _session_exit(v) -> int:
@@ -81,6 +111,8 @@ def _after_state(args, body):
     from .scenario_file import load_state_file
 
     st = load_state_file(args.after, body)
+    for note in st.notes:
+        print(f"burndesk: note: {note}", file=sys.stderr)
     return OrbitState(st.epoch_s, st.r_m, st.v_m_s)
 
 
@@ -202,6 +234,10 @@ def build_parser() -> argparse.ArgumentParser:
     pl = sub.add_parser("plan", help="plan the burn queue of a scenario")
     pl.add_argument("scenario", help="scenario file (TOML) with a vehicle and a [target]")
     pl.add_argument("--json", action="store_true", help="print JSON instead of the table")
+    pl.add_argument("--opm", metavar="OUT.opm",
+                    help="also write the queue as a CCSDS orbit parameter message (KVN)")
+    pl.add_argument("--csv", metavar="DIR", help="also write queue.csv into this existing folder")
+    pl.add_argument("--force", action="store_true", help="let --opm overwrite an existing file")
     pl.set_defaults(func=cmd_plan)
 
     se = sub.add_parser("session", help="campaign sessions: record burns, drift, calibration, ledger")
@@ -217,7 +253,8 @@ def build_parser() -> argparse.ArgumentParser:
     a = ss.add_parser("record", help="record what a burn did")
     a.add_argument("session")
     a.add_argument("--burn", type=int, required=True, help="burn number (the next in the queue)")
-    a.add_argument("--after", required=True, help="STATE.toml: epoch and [state] from orbit determination")
+    a.add_argument("--after", required=True,
+                   help="STATE.toml (epoch and [state]) or an OPM file from orbit determination")
     a.add_argument("--ignition", help="actual ignition, ISO 8601 UTC (default: as commanded)")
     a.add_argument("--duration", help="actual on-time, e.g. 382.5 or '6.4 min' (default: as commanded)")
     a.add_argument("--propellant", help="propellant used, e.g. 0.71 or '710 g' (default: book-kept from the fit)")

@@ -8,7 +8,7 @@ times).  Every error names the file and the key.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -18,7 +18,7 @@ from mechanics.elements import Elements, apsides_to_elements, elements_to_rv, rv
 from mechanics.scenario import PlanOptions, Scenario, Target
 
 from .profiles import check_keys, load_body, load_vehicle, read_toml
-from .timeutil import parse_utc
+from .timeutil import format_utc, parse_utc
 from .units import parse_value
 
 SCENARIO_KEYS = {"name", "description", "body", "vehicle", "epoch", "state", "target", "options"}
@@ -33,12 +33,18 @@ STATE_KEYS = set(FORMS["vector"]) | set(FORMS["elements"]) | set(FORMS["apsides"
 
 @dataclass(frozen=True)
 class StateInput:
-    """A state read from a file or a form: osculating r, v at an epoch, and how it was given."""
+    """A state read from a file or a form: osculating r, v at an epoch, and how it was given.
+
+    ``notes`` are things the operator should hear about the input (e.g. an OPM's MASS, which is
+    informational); ``opm`` is the :class:`console.opm.OpmDocument` the state came from, if any.
+    """
 
     epoch_s: float | None
     r_m: tuple
     v_m_s: tuple
     form: str
+    notes: tuple = ()
+    opm: object = None
 
 
 def _vector(value, kind: str, field: str):
@@ -87,7 +93,8 @@ def parse_state(table, body: Body, where: str = "state") -> tuple[tuple, tuple, 
     form = present[0]
     mu = body.mu_m3_s2
     if form == "opm":
-        raise ValueError(f"{where}.opm: reading orbit parameter messages is not available in this version")
+        raise ValueError(f"{where}.opm: an orbit parameter message is read only from a scenario or "
+                         "STATE file (its path resolves against that file's folder)")
     if form == "vector":
         if has_vector and any(k in table for k in OPTIONAL_APSIDES):
             extra = next(k for k in OPTIONAL_APSIDES if k in table)
@@ -97,16 +104,7 @@ def parse_state(table, body: Body, where: str = "state") -> tuple[tuple, tuple, 
                 raise ValueError(f"{where}.{key}: missing (the vector form needs r and v)")
         r = _vector(table["r"], "length", f"{where}.r")
         v = _vector(table["v"], "speed", f"{where}.v")
-        rmag = math.sqrt(sum(c * c for c in r))
-        if rmag <= body.radius_m:
-            raise ValueError(f"{where}.r: position is inside the body ({(rmag - body.radius_m) / 1e3:.1f} km altitude)")
-        try:
-            el = rv_to_elements(np.array(r), np.array(v), mu)
-        except ValueError as exc:
-            raise ValueError(f"{where}.v: {exc}") from None
-        if el.periapsis_radius_m <= body.radius_m and (el.e < 1.0 or _approaching(r, v)):
-            raise ValueError(f"{where}: periapsis is inside the body "
-                             f"({(el.periapsis_radius_m - body.radius_m) / 1e3:.1f} km altitude)")
+        check_vector(r, v, body, f"{where}.r", f"{where}.v", where)
         return r, v, form
     if form == "elements":
         for key in FORMS["elements"]:
@@ -143,6 +141,100 @@ def parse_state(table, body: Body, where: str = "state") -> tuple[tuple, tuple, 
                                  angles["raan"], angles["argp"], angles["nu"])
     r, v = elements_to_rv(el, mu)
     return tuple(map(float, r)), tuple(map(float, v)), form
+
+
+def check_vector(r, v, body: Body, r_field: str, v_field: str, where: str) -> None:
+    """Refuse a position inside the body, a parabolic state, or a periapsis inside the body
+    (an open orbit only if it is still approaching it)."""
+    rmag = math.sqrt(sum(c * c for c in r))
+    if rmag <= body.radius_m:
+        raise ValueError(f"{r_field}: position is inside the body ({(rmag - body.radius_m) / 1e3:.1f} km altitude)")
+    try:
+        el = rv_to_elements(np.array(r), np.array(v), body.mu_m3_s2)
+    except ValueError as exc:
+        raise ValueError(f"{v_field}: {exc}") from None
+    if el.periapsis_radius_m <= body.radius_m and (el.e < 1.0 or _approaching(r, v)):
+        raise ValueError(f"{where}: periapsis is inside the body "
+                         f"({(el.periapsis_radius_m - body.radius_m) / 1e3:.1f} km altitude)")
+
+
+def _is_opm_table(table) -> bool:
+    return isinstance(table, dict) and "opm" in table
+
+
+def read_state(table, body: Body, base_dir: Path, where: str = "state", vehicle=None) -> StateInput:
+    """A ``[state]`` table in any form, including ``opm = "FILE"`` (resolved against ``base_dir``).
+
+    The epoch is ``None`` unless the state came from an OPM (whose EPOCH it is).
+    """
+    if _is_opm_table(table):
+        return read_opm_state(table, body, base_dir, where, vehicle)
+    r, v, form = parse_state(table, body, where)
+    return StateInput(None, r, v, form)
+
+
+def read_opm_state(table, body: Body, base_dir: Path, where: str = "state", vehicle=None) -> StateInput:
+    """``[state] opm = "FILE"``: the state of an orbit parameter message (see :mod:`console.opm`)."""
+    from .opm import read_opm_file
+
+    check_keys(table, STATE_KEYS, where)
+    for key in sorted(set(table) - {"opm"}):
+        if key == "frame":
+            raise ValueError(f"{where}.frame: the OPM's REF_FRAME gives the frame: remove frame")
+        raise ValueError(f"{where}.{key}: not used with opm (the message holds the whole state): remove it")
+    ref = table["opm"]
+    if not isinstance(ref, str) or not ref.strip():
+        raise ValueError(f"{where}.opm: expected the path of an OPM file (text)")
+    path = Path(ref.strip())
+    if not path.is_absolute():
+        path = Path(base_dir) / path
+    return opm_state(read_opm_file(path), body, f"{where}.opm", vehicle)
+
+
+def opm_state(doc, body: Body, where: str, vehicle=None) -> StateInput:
+    """Check an :class:`console.opm.OpmDocument` against the body and turn it into a state.
+
+    Raises
+    ------
+    ValueError
+        When its CENTER_NAME is not the body, or its orbit is inside the body.
+    """
+    pre = f"{where}: " if where else ""
+    if doc.center_name != " ".join(body.name.replace("_", " ").split()).upper():
+        raise ValueError(f"{pre}{doc.where('CENTER_NAME')}: CENTER_NAME {doc.metadata['CENTER_NAME']} "
+                         f"does not match the body {body.name!r}")
+    check_vector(doc.r_m, doc.v_m_s, body, f"{pre}{doc.where('X')} (X, Y, Z)",
+                 f"{pre}{doc.where('X_DOT')} (X_DOT, Y_DOT, Z_DOT)", f"{pre}{doc.source}")
+    notes = []
+    if doc.mass_kg is not None:
+        if vehicle is not None:
+            diff = doc.mass_kg - vehicle.wet_mass_kg
+            notes.append(f"{doc.where('MASS')}: MASS {doc.mass_kg:.3f} kg is informational; the plan uses "
+                         f"the vehicle's {vehicle.wet_mass_kg:.3f} kg (dry + loaded propellant)"
+                         + (f", {diff:+.3f} kg from the OPM: check the vehicle profile" if abs(diff) >= 1e-3 else ""))
+        else:
+            notes.append(f"{doc.where('MASS')}: MASS {doc.mass_kg:.3f} kg is informational (not used)")
+    if doc.keplerian is not None and abs(doc.keplerian.gm_m3_s2 / body.mu_m3_s2 - 1.0) > 1e-9:
+        notes.append(f"{doc.where('GM')}: GM {doc.keplerian.gm_m3_s2 / 1e9:.6f} km^3/s^2 differs from the "
+                     f"body's {body.mu_m3_s2 / 1e9:.6f}; burndesk uses the state vector and the body's GM")
+    if doc.maneuvers:
+        notes.append(f"{doc.source}: its {len(doc.maneuvers)} manoeuvre block(s) are not used; the state is "
+                     "the one at EPOCH")
+    if doc.user_defined:
+        notes.append(f"{doc.source}: USER_DEFINED parameters ({', '.join(doc.user_defined)}) are kept "
+                     "but not interpreted")
+    return StateInput(doc.epoch_s, tuple(doc.r_m), tuple(doc.v_m_s), "opm", tuple(notes), doc)
+
+
+def _state_epoch(epoch_s, st: StateInput, where: str) -> float:
+    """The epoch of a state: the file's ``epoch``, or the OPM's EPOCH (and both must agree)."""
+    if st.opm is None:
+        return epoch_s
+    if epoch_s is not None and abs(epoch_s - st.epoch_s) > 1e-6:
+        raise ValueError(f"{where}: epoch: {format_utc(epoch_s, 6)} disagrees with the OPM's EPOCH "
+                         f"{format_utc(st.epoch_s, 6)} ({st.opm.where('EPOCH')}): "
+                         "remove epoch (the OPM gives it) or make them agree")
+    return st.epoch_s
 
 
 def _approaching(r, v) -> bool:
@@ -238,21 +330,32 @@ def parse_options(table, body: Body, where: str = "options") -> tuple[str, PlanO
 
 def scenario_from_doc(doc: dict, base_dir: Path, where: str) -> Scenario:
     """Build a :class:`Scenario` from a parsed scenario TOML document."""
+    return scenario_and_state(doc, base_dir, where)[0]
+
+
+def scenario_and_state(doc: dict, base_dir: Path, where: str) -> tuple[Scenario, StateInput]:
+    """(:class:`Scenario`, the :class:`StateInput` it was built from) of a scenario document.
+
+    ``epoch`` may be left out when the state is an OPM (``[state] opm = "FILE"``), whose EPOCH
+    is then the epoch; when both are given they must agree.
+    """
     check_keys(doc, SCENARIO_KEYS, where)
     for key in ("body", "epoch", "state"):
-        if key not in doc:
+        if key not in doc and not (key == "epoch" and _is_opm_table(doc.get("state"))):
             raise ValueError(f"{where}: {key}: missing")
     body = load_body(doc["body"], base_dir, field=f"{where}: body")
     vehicle = load_vehicle(doc["vehicle"], base_dir, field=f"{where}: vehicle") if "vehicle" in doc else None
-    epoch = parse_utc(doc["epoch"], f"{where}: epoch")
-    r, v, _form = _prefixed(lambda: parse_state(doc["state"], body), where)
+    epoch = parse_utc(doc["epoch"], f"{where}: epoch") if "epoch" in doc else None
+    st = _prefixed(lambda: read_state(doc["state"], body, base_dir, vehicle=vehicle), where)
+    epoch = _state_epoch(epoch, st, where)
+    r, v = st.r_m, st.v_m_s
     model, options = _prefixed(lambda: parse_options(doc.get("options", {}), body), where)
     target = _prefixed(lambda: parse_target(doc["target"], body), where) if "target" in doc else None
     name = doc.get("name", Path(where).stem)
     if not isinstance(name, str) or not name.strip():
         raise ValueError(f"{where}: name: expected text")
     return Scenario(name=name.strip(), body=body, epoch_s=epoch, r_m=r, v_m_s=v, model=model,
-                    vehicle=vehicle, target=target, options=options)
+                    vehicle=vehicle, target=target, options=options), replace(st, epoch_s=epoch)
 
 
 def _prefixed(fn, where: str):
@@ -264,20 +367,44 @@ def _prefixed(fn, where: str):
 
 def load_scenario(path) -> Scenario:
     """Read a scenario file."""
+    return load_scenario_with_state(path)[0]
+
+
+def load_scenario_with_state(path) -> tuple[Scenario, StateInput]:
+    """Read a scenario file; also return how its state was given (notes, the OPM if any)."""
     path = Path(path)
     doc = read_toml(path, "scenario file")
-    return scenario_from_doc(doc, path.resolve().parent, str(path))
+    return scenario_and_state(doc, path.resolve().parent, str(path))
+
+
+def _is_opm_file(path: Path) -> bool:
+    """An OPM given directly: a ``.opm`` name, or text whose first line is CCSDS_OPM_VERS."""
+    if path.suffix.lower() == ".opm":
+        return True
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(4096)
+    except OSError:
+        return False
+    from .opm import looks_like_opm
+
+    return looks_like_opm(head.decode("ascii", errors="replace"))
 
 
 def load_state_file(path, body: Body) -> StateInput:
-    """Read a STATE file: ``epoch`` and a ``[state]`` table in any form."""
+    """Read a STATE file: ``epoch`` and a ``[state]`` table in any form (``epoch`` may be left
+    out when the table is ``opm = "FILE"``), or an OPM file itself (KVN)."""
     path = Path(path)
+    if _is_opm_file(path):
+        from .opm import read_opm_file
+
+        return opm_state(read_opm_file(path), body, "")
     doc = read_toml(path, "state file")
     where = str(path)
     check_keys(doc, {"epoch", "state", "description"}, where)
     for key in ("epoch", "state"):
-        if key not in doc:
+        if key not in doc and not (key == "epoch" and _is_opm_table(doc.get("state"))):
             raise ValueError(f"{where}: {key}: missing")
-    epoch = parse_utc(doc["epoch"], f"{where}: epoch")
-    r, v, form = _prefixed(lambda: parse_state(doc["state"], body), where)
-    return StateInput(epoch, r, v, form)
+    epoch = parse_utc(doc["epoch"], f"{where}: epoch") if "epoch" in doc else None
+    st = _prefixed(lambda: read_state(doc["state"], body, path.resolve().parent), where)
+    return replace(st, epoch_s=_state_epoch(epoch, st, where))
