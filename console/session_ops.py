@@ -181,7 +181,8 @@ def export_csv(v: SessionView, folder) -> list[Path]:
     folder = Path(folder)
     if not folder.is_dir():
         raise ValueError(f"{folder}: export folder does not exist")
-    from .exports import ACTUAL_COLUMNS, PLANNED_COLUMNS, actual_cells, headers, planned_cells, write_csv
+    from .exports import (ACTUAL_COLUMNS, ATTITUDE_COLUMNS, PLANNED_COLUMNS, actual_cells, attitude_cells,
+                          headers, planned_cells, write_csv)
 
     R = v.scenario.body.radius_m
     written = []
@@ -189,9 +190,10 @@ def export_csv(v: SessionView, folder) -> list[Path]:
     def out(name, header, rows):
         written.append(write_csv(folder, name, header, rows))
 
-    queue_rows = [[row.index, row.status, *planned_cells(row.planned, R), *actual_cells(row.actual)]
-                  for row in v.rows]
-    out("queue.csv", ["burn", "status", *headers(PLANNED_COLUMNS), *headers(ACTUAL_COLUMNS)], queue_rows)
+    queue_rows = [[row.index, row.status, *planned_cells(row.planned, R), *actual_cells(row.actual),
+                   *attitude_cells(row.planned)] for row in v.rows]
+    out("queue.csv", ["burn", "status", *headers(PLANNED_COLUMNS), *headers(ACTUAL_COLUMNS),
+                      *headers(ATTITUDE_COLUMNS)], queue_rows)
     lg = v.ledger
     ledger_rows = [["loaded", f"{lg.loaded_kg:.6f}"], ["used_planned_done", f"{lg.used_planned_kg:.6f}"],
                    ["used_recorded", f"{lg.used_recorded_kg:.6f}"], ["remaining", f"{lg.remaining_kg:.6f}"],

@@ -121,11 +121,12 @@ def test_one_column_definition_serves_plan_and_session(tmp_path):
     p_names, p_rows = read_rows(plan_dir / "queue.csv")
     s_names, s_rows = read_rows(sess_dir / "queue.csv")
     planned = headers(PLANNED_COLUMNS)
-    assert s_names == ["burn", "status", *planned, *headers(ACTUAL_COLUMNS)]
-    assert p_names == ["burn", *planned, *headers(ATTITUDE_COLUMNS)]
+    attitude = headers(ATTITUDE_COLUMNS)
+    assert s_names == ["burn", "status", *planned, *headers(ACTUAL_COLUMNS), *attitude]
+    assert p_names == ["burn", *planned, *attitude]
     # a fresh session plans what `plan` plans: the shared columns hold the same cells
-    assert [[r[n] for n in ["burn", *planned]] for r in p_rows] == \
-           [[r[n] for n in ["burn", *planned]] for r in s_rows]
+    assert [[r[n] for n in ["burn", *planned, *attitude]] for r in p_rows] == \
+           [[r[n] for n in ["burn", *planned, *attitude]] for r in s_rows]
     assert all(r["status"] == "planned" and r["actual_ignition_utc"] == "" for r in s_rows)
 
 
