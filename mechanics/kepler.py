@@ -347,7 +347,9 @@ def propagate_kepler(r_m, v_m_s, dt_s, mu_m3_s2: float):
         dE = np.asarray(solve_kepler(E0 - es0 + n * dt, e)) - E0
         sin_d, one_minus_cos = np.sin(dE), 1.0 - np.cos(dE)
         f = 1.0 - a / r0n * one_minus_cos
-        g = dt - (dE - sin_d) / n
+        # g = dt - (dE - sin dE)/n, rewritten with Kepler's equation in difference form so that
+        # no two large numbers are subtracted over many revolutions (which would spoil the energy)
+        g = (r0n / a * sin_d + es0 * one_minus_cos) / n
         r1 = f[..., None] * r0 + g[..., None] * v0
         r1n = np.sqrt(np.sum(r1 * r1, axis=-1))
         fdot = -np.sqrt(mu_m3_s2 * a) / (r1n * r0n) * sin_d
@@ -358,7 +360,7 @@ def propagate_kepler(r_m, v_m_s, dt_s, mu_m3_s2: float):
         dH = np.asarray(solve_kepler_hyperbolic(es0 - H0 + n * dt, e)) - H0
         sinh_d, one_minus_cosh = np.sinh(dH), 1.0 - np.cosh(dH)
         f = 1.0 - a / r0n * one_minus_cosh
-        g = dt - (sinh_d - dH) / n
+        g = (-es0 * one_minus_cosh - r0n / a * sinh_d) / n  # = dt - (sinh dH - dH)/n, no cancellation
         r1 = f[..., None] * r0 + g[..., None] * v0
         r1n = np.sqrt(np.sum(r1 * r1, axis=-1))
         fdot = -np.sqrt(-mu_m3_s2 * a) / (r1n * r0n) * sinh_d
