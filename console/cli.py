@@ -19,12 +19,6 @@ EXIT_INFEASIBLE = 3
 EXIT_INTERNAL = 70
 
 
-def _demo_scenario() -> str:
-    from .profiles import profiles_dir
-
-    return str(profiles_dir() / "scenarios" / "demo.toml")
-
-
 def cmd_orbit(args) -> int:
     from mechanics.summary import summarize
 
@@ -203,10 +197,17 @@ def cmd_session_recover(args) -> int:
     return EXIT_OK if report.complete else EXIT_INFEASIBLE
 
 
+def cmd_console(args) -> int:
+    from .app import run_console
+
+    return run_console(args.session, args.scenario)
+
+
 def cmd_default(args) -> int:
-    args.scenario = _demo_scenario()
-    args.json = False
-    return cmd_orbit(args)
+    """Bare ``burndesk``: the console on the default session (created from the demo on first run)."""
+    from .app import run_console
+
+    return run_console(None, None)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -239,6 +240,12 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--csv", metavar="DIR", help="also write queue.csv into this existing folder")
     pl.add_argument("--force", action="store_true", help="let --opm overwrite an existing file")
     pl.set_defaults(func=cmd_plan)
+
+    co = sub.add_parser("console", help="the interactive console (opens or creates a session)")
+    co.add_argument("--session", help="session file (default: your default session in the burndesk "
+                                      "data folder, $BURNDESK_HOME or $XDG_DATA_HOME/burndesk)")
+    co.add_argument("--scenario", help="scenario file (TOML) to create the session from when it does not exist")
+    co.set_defaults(func=cmd_console)
 
     se = sub.add_parser("session", help="campaign sessions: record burns, drift, calibration, ledger")
     ss = se.add_subparsers(dest="action", metavar="ACTION", required=True, parser_class=_Parser)
