@@ -73,6 +73,17 @@ def _write_plan_outputs(args, plan, sc, st) -> None:
             print(f"burndesk: wrote {path}", file=sys.stderr)
 
 
+def cmd_fleet(args) -> int:
+    """``burndesk fleet FILE.csv``: first-cut plans of many spacecraft (see console/fleet_file.py)."""
+    from .fleet_file import run_fleet
+
+    run = run_fleet(args.file, out=args.out, force=args.force)
+    print(run.text)
+    for path in run.written:
+        print(f"burndesk: wrote {path}", file=sys.stderr)
+    return EXIT_OK if run.feasible else EXIT_INFEASIBLE
+
+
 def _session_exit(v) -> int:
     return EXIT_OK if v.feasible or (v.plan is not None and not v.plan.burns) else EXIT_INFEASIBLE
 
@@ -240,6 +251,15 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--csv", metavar="DIR", help="also write queue.csv into this existing folder")
     pl.add_argument("--force", action="store_true", help="let --opm overwrite an existing file")
     pl.set_defaults(func=cmd_plan)
+
+    fl = sub.add_parser("fleet", help="first-cut burn queues of many spacecraft from a CSV file "
+                                      "(two-body timing, impulsive design with finite durations)")
+    fl.add_argument("file", help="fleet CSV, one spacecraft per row (README \"Fleet planning\")")
+    fl.add_argument("--out", metavar="OUT.csv",
+                    help="queue to write (default: FILE's stem + .queue.csv beside it); the "
+                         "per-spacecraft summary goes beside it as *.summary.csv")
+    fl.add_argument("--force", action="store_true", help="overwrite existing output files")
+    fl.set_defaults(func=cmd_fleet)
 
     co = sub.add_parser("console", help="the interactive console (opens or creates a session)")
     co.add_argument("--session", help="session file (default: your default session in the burndesk "

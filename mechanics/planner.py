@@ -64,6 +64,8 @@ TARGET_TOLERANCE_M = 50.0
 SPLIT_MARGIN = 0.97
 #: Legs that move an apsis by less than this are dropped, m.
 SKIP_LEG_M = 20.0
+#: Most burns one leg may be split into (the largest forced ``split`` too).
+MAX_SPLIT = 200
 
 
 @dataclass(frozen=True)
@@ -441,7 +443,7 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
         need_kg = m0 * -math.expm1(-need_dv / engine.c_m_s)
         warnings.append(f"infeasible: the target needs about {need_dv:.1f} m/s, i.e. {need_kg:.3f} kg "
                         f"of propellant (impulsive estimate), but only {usable_now:.3f} kg is usable")
-    elif margin < 0.0:
+    elif margin < -1e-9:  # the feasibility test's tolerance: rounding is no inroad on the reserve
         warnings.append(f"propellant after the plan ({after:.3f} kg) eats {-margin:.3f} kg into the "
                         f"reserve of {veh.reserve_kg:.3f} kg")
     final_mass = float(final_y[6])
@@ -549,24 +551,55 @@ class _Campaign:
         self.final_y, self.final_mean = snap.y, snap.mean
         return burns
 
-    def _split_count(self, snap: _Snapshot, dv_leg: float, r_b: float) -> int:
+    def _split_count(self, snap: _Snapshot, dv_leg: float, r_b: float, r_goal: float) -> int:
+        """Smallest N whose longest burn keeps within both vehicle limits (see module notes).
+
+        The N burns of a leg deliver equal delta-v, so the first, at the highest mass, is the
+        longest; its arc is judged at the faster of the burn point's angular rates on the
+        leg's start and end orbits (v / r at an apsis).
+        """
         split = self.sc.options.split
         if isinstance(split, int):
             return split
         if split == "off":
             return 1
+        mu = self.sc.body.mu_m3_s2
         m = float(snap.y[6])
-        duration = self.engine.duration_for_dv(m, dv_leg)
-        rate = vis_viva_speed(r_b, snap.mean.a_m, self.sc.body.mu_m3_s2) / r_b
-        arc = duration * rate
-        need = max(duration / (self.limit_s * SPLIT_MARGIN), arc / (self.limit_arc * SPLIT_MARGIN), 1.0)
-        return int(math.ceil(need - 1e-9))
+        r_other = snap.mean.apoapsis_radius_m + snap.mean.periapsis_radius_m - r_b
+        rate = max(vis_viva_speed(r_b, 0.5 * (r_b + r_other), mu),
+                   vis_viva_speed(r_b, 0.5 * (r_b + r_goal), mu)) / r_b
+        lim_d, lim_arc = self.limit_s * SPLIT_MARGIN, self.limit_arc * SPLIT_MARGIN
+        total = self.engine.duration_for_dv(m, dv_leg)
+        need = max(total / lim_d, total * rate / lim_arc, 1.0)  # a lower bound: D1 >= total / N
+        if need > MAX_SPLIT:
+            raise PlanningError(
+                f"a leg of {dv_leg:.1f} m/s would need {need:.3g} burns to keep within the vehicle's "
+                f"burn limits (at most {MAX_SPLIT} per leg): the thrust of {self.engine.thrust_n:.3g} N "
+                "is too low for this change")
+        n = int(math.ceil(need - 1e-9))
+        while n < MAX_SPLIT:
+            first = self.engine.duration_for_dv(m, dv_leg / n)
+            if first <= lim_d and first * rate <= lim_arc:
+                break
+            n += 1
+        return n
 
     def _fly_leg(self, g: int, leg: Leg, snap: _Snapshot, circular: bool):
         mu = self.sc.body.mu_m3_s2
         r_b, r_o = _leg_radii(leg, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
         dv_leg = apsis_burn_dv(r_b, r_o, leg.goal_radius_m, mu)
-        n = self._split_count(snap, abs(dv_leg), r_b)
+        n = self._split_count(snap, abs(dv_leg), r_b, leg.goal_radius_m)
+        m = float(snap.y[6])
+        per_burn_s = min(self.engine.duration_for_dv(m, abs(dv_leg) / n),
+                         max(m - self.dry_floor, 0.0) / self.engine.mdot_kg_s)
+        period_s = TWO_PI * math.sqrt(snap.mean.a_m ** 3 / mu)
+        if per_burn_s > period_s:
+            # an apsis-centred burn longer than an orbit is no apsis burn (and would be flown
+            # for as long as it lasts, years at micronewtons): refuse instead
+            raise PlanningError(
+                f"a burn of leg {g + 1} would last {per_burn_s:.3g} s, longer than one orbit "
+                f"({period_s:.0f} s): the thrust of {self.engine.thrust_n:.3g} N is too low for "
+                "burns centred on an apsis")
         goals = [opposite_apsis_after(r_b, r_o, dv_leg * k / n, mu) for k in range(1, n)]
         goals.append(leg.goal_radius_m)
         later = leg.burn_at if leg.burn_at != "any" else ("periapsis" if leg.sense > 0 else "apoapsis")
@@ -602,7 +635,7 @@ class _Campaign:
         mu = self.sc.body.mu_m3_s2
         r_b, r_o = _leg_radii(last, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
         dv_last = abs(apsis_burn_dv(r_b, r_o, last.goal_radius_m, mu))
-        n = self._split_count(snap, dv_last, r_b)
+        n = self._split_count(snap, dv_last, r_b, last.goal_radius_m)
         m = float(snap.y[6])
         arc = self.engine.duration_for_dv(m, dv_last / n) * vis_viva_speed(r_b, snap.mean.a_m, mu) / r_b
         drift = c * last.sense * dv_last * arc ** 2
