@@ -509,7 +509,8 @@ class BurndeskApp(App):
         try:
             seq = self.session.record_burn(message.burn, val["after"], ignition_s=val["ignition_s"],
                                            duration_s=val["duration_s"], propellant_kg=val["propellant_kg"],
-                                           propellant_source=val["propellant_source"])
+                                           propellant_source=val["propellant_source"],
+                                           planned=nxt.planned)
         except ValueError as exc:
             msg = str(exc)
             key = GENERAL

@@ -102,17 +102,25 @@ class Session:
         return max(self.written, default=0) + 1
 
     def record_burn(self, burn: int, after: OrbitState, *, ignition_s=None, duration_s=None,
-                    propellant_kg=None, propellant_source="book-keeping", note="") -> int:
-        """Record what burn ``burn`` did; defaults take the commanded ignition and duration."""
-        v = self.view()
-        row = v.next_burn
+                    propellant_kg=None, propellant_source="book-keeping", note="",
+                    planned=None) -> int:
+        """Record what burn ``burn`` did; defaults take the commanded ignition and duration.
+
+        ``planned`` is the burn as commanded (a PlannedBurn); without it the current view is
+        derived here, which replans (the console passes the row it shows instead).
+        """
         expected = next_burn_number(self.state)
         if burn != expected:
             raise ValueError(f"burn {burn} is not the next burn to record (next is {expected})")
-        if row is None or row.index != burn:
-            raise ValueError(f"burn {burn} is not in the planned queue"
-                             + (f" ({v.plan_error})" if v.plan_error else ""))
-        planned = row.planned
+        if planned is None:
+            v = self.view()
+            row = v.next_burn
+            if row is None or row.index != burn:
+                raise ValueError(f"burn {burn} is not in the planned queue"
+                                 + (f" ({v.plan_error})" if v.plan_error else ""))
+            planned = row.planned
+        elif planned.index != burn:
+            raise ValueError(f"burn {burn} does not match the commanded burn {planned.index}")
         ign = planned.ignition_s if ignition_s is None else float(ignition_s)
         dur = planned.duration_s if duration_s is None else float(duration_s)
         if propellant_kg is not None and not (math.isfinite(propellant_kg) and propellant_kg >= 0.0):

@@ -301,3 +301,20 @@ def test_replaying_any_prefix_gives_the_view_the_live_session_had(choices):
     for n in range(1, len(events) + 1):
         replayed = view(replay(events[:n]))
         assert _fingerprint(replayed) == _fingerprint(live_views[n - 1])
+
+
+def test_a_gauge_reading_is_compared_with_the_book_at_its_own_epoch():
+    sc = two_body_scenario()
+    state = start(sc)
+    b1 = view(state).next_burn.planned
+    y0 = np.r_[sc.r_m, sc.v_m_s, sc.vehicle.wet_mass_kg]
+    y_od, t_od, _ = truth_burn(sc, y0, sc.epoch_s, b1, 1.0)
+    state = record(state, 2, 1, b1, y_od, t_od, propellant_kg=1.5, propellant_source="gauge")
+    # entered after the burn record, but read before the burn ignited: the book then was full
+    state = apply(state, 3, GaugeReadingTaken(b1.ignition_s - 600.0, 59.9, "PVT"))
+    state = apply(state, 4, GaugeReadingTaken(t_od + 60.0, 58.4, "PVT"))
+    early, late = view(state).ledger.gauges
+    assert early.book_kg == pytest.approx(60.0, abs=1e-9)
+    assert early.difference_kg == pytest.approx(-0.1, abs=1e-9)
+    assert late.book_kg == pytest.approx(60.0 - 1.5, abs=1e-9)
+    assert late.difference_kg == pytest.approx(-0.1, abs=1e-9)

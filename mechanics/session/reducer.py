@@ -25,6 +25,7 @@ from __future__ import annotations
 import bisect
 import json
 import math
+import threading
 from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
@@ -375,20 +376,25 @@ def planned_from_dict(d: dict) -> PlannedBurn:
 
 _CACHE: dict = {}
 _CACHE_MAX = 256
+_CACHE_LOCK = threading.Lock()
 
 
 def clear_cache() -> None:
     """Forget memoised plans and fits (they are recomputed on demand)."""
-    _CACHE.clear()
+    with _CACHE_LOCK:
+        _CACHE.clear()
 
 
 def _memo(key, fn):
-    if key in _CACHE:
-        return _CACHE[key]
+    """Memoised ``fn()`` under ``key`` (the console's worker and UI threads both derive views)."""
+    with _CACHE_LOCK:
+        if key in _CACHE:
+            return _CACHE[key]
     value = fn()
-    if len(_CACHE) >= _CACHE_MAX:
-        _CACHE.pop(next(iter(_CACHE)))
-    _CACHE[key] = value
+    with _CACHE_LOCK:
+        if len(_CACHE) >= _CACHE_MAX:
+            _CACHE.pop(next(iter(_CACHE)))
+        _CACHE[key] = value
     return value
 
 
@@ -489,6 +495,8 @@ def view(state: SessionState) -> SessionView:
     done_rows: dict[int, QueueRow] = {}
     factors: list[float] = []
     gauges: list[GaugeRow] = []
+    readings: list = []
+    burned: list = []
     per_burn = []
     used_recorded = used_planned = 0.0
     active_seqs = {e.seq for e in state.active()}
@@ -520,6 +528,7 @@ def view(state: SessionState) -> SessionView:
                                           _actual_dict(ev, booked, drift), drift)
             used_recorded += booked
             used_planned += planned.propellant_kg
+            burned.append((ev.ignition_s + ev.duration_s, booked))
             per_burn.append((ev.burn, planned.propellant_kg, booked,
                              ev.propellant_source if ev.propellant_kg is not None else "estimated"))
             known = KnownState(ev.after.epoch_s, ev.after.r_m, ev.after.v_m_s, m0 - booked,
@@ -528,8 +537,12 @@ def view(state: SessionState) -> SessionView:
             known = KnownState(ev.state.epoch_s, ev.state.r_m, ev.state.v_m_s, known.mass_kg,
                                "state entered", e.seq)
         elif isinstance(ev, GaugeReadingTaken) and active and veh is not None:
-            gauges.append(GaugeRow(e.seq, ev.epoch_s, ev.propellant_kg, known.mass_kg - veh.dry_mass_kg,
-                                   ev.method))
+            readings.append((e.seq, ev))
+    # a gauge reading is compared with the book as it stood at the reading's own epoch: every
+    # recorded burn that had ended by then, whenever it was entered
+    for seq, ev in readings:
+        book = veh.propellant_kg - sum(kg for cutoff, kg in burned if cutoff <= ev.epoch_s)
+        gauges.append(GaugeRow(seq, ev.epoch_s, ev.propellant_kg, book, ev.method))
     if factors:
         k_mean = float(np.mean(factors))
         spread = float(np.std(factors, ddof=1)) if len(factors) > 1 else None
