@@ -78,9 +78,34 @@ def parse_value(value, kind: str, field: str, *, allow_negative: bool = False,
     return result
 
 
+#: Plain units an operator types most, with their factor to SI: read without pint, whose unit
+#: registry takes about half a second to build.  The factors are definitions (SI prefixes, and
+#: the minute, hour, day and degree accepted for use with the SI; SI Brochure, 9th ed., 2019,
+#: from memory) and agree with pint's (tests/test_units_time.py compares them).
+_FAST = {
+    "m": ("length", 1.0), "km": ("length", 1e3),
+    "m/s": ("speed", 1.0), "km/s": ("speed", 1e3),
+    "deg": ("angle", math.pi / 180.0), "degree": ("angle", math.pi / 180.0), "rad": ("angle", 1.0),
+    "kg": ("mass", 1.0), "g": ("mass", 1e-3),
+    "N": ("force", 1.0), "mN": ("force", 1e-3), "kN": ("force", 1e3),
+    "s": ("time", 1.0), "min": ("time", 60.0), "h": ("time", 3600.0), "day": ("time", 86400.0),
+    "kg/s": ("mass_flow", 1.0), "g/s": ("mass_flow", 1e-3),
+    "m^3/s^2": ("gravitational_parameter", 1.0), "km^3/s^2": ("gravitational_parameter", 1e9),
+    "rad/s": ("rate", 1.0),
+    "%": ("ratio", 0.01),
+}
+
+
+def _fast_key(unit: str) -> str:
+    return unit.replace(" ", "").replace("**", "^")
+
+
 def _to_si(number: float, unit: str, si: str, field: str) -> float:
     if unit == si:
         return number
+    fast = _FAST.get(_fast_key(unit))
+    if fast is not None:
+        return number * fast[1]
     ureg = registry()
     return float(ureg.Quantity(number, unit).to(si).magnitude)
 
@@ -107,6 +132,15 @@ def _parse_text(text: str, kind: str, field: str) -> float:
     unit_text = m.group(2)
     if not _UNIT.match(unit_text):
         raise ValueError(f"{field}: {unit_text!r} in {text!r} is not a unit")
+    fast = _FAST.get(_fast_key(unit_text))
+    if fast is not None:
+        fits = fast[0] == kind or (fast[0] == "ratio" and kind == "dimensionless")
+        if not fits:
+            raise ValueError(f"{field}: {text!r} is not {human} (unit {unit_text})")
+        result = float(m.group(1)) * fast[1]
+        if not math.isfinite(result):
+            raise ValueError(f"{field}: {text!r} is not finite")
+        return result
     ureg = registry()
     try:
         q = ureg.Quantity(float(m.group(1)), ureg.parse_units(unit_text))

@@ -313,3 +313,15 @@ def test_format_parse_round_trip_ms(t_s):
 )
 def test_format_duration(seconds, text):
     assert format_duration(seconds) == text
+
+
+def test_units_read_without_pint_agree_with_pint():
+    # the fast path for common units must give pint's own conversion, to the last bits
+    import console.units as U
+
+    ureg = U.registry()
+    for unit, (kind, factor) in U._FAST.items():
+        si = U.KINDS[kind][1]
+        expected = ureg.Quantity(2.5, unit.replace("^", "**")).to(si).magnitude if si else \
+            ureg.Quantity(2.5, unit).to("").magnitude
+        assert U.parse_value(f"2.5 {unit}", kind, "f") == pytest.approx(expected, rel=1e-15), unit
