@@ -81,7 +81,8 @@ def write_csv(folder, name: str, header, rows) -> Path:
     Raises
     ------
     ValueError
-        When the file name or its temporary twin is a link.
+        When the file name or its temporary twin is a link, or the file cannot be written
+        (read-only folder, full disk).
     """
     folder = Path(folder)
     path = folder / name
@@ -90,12 +91,20 @@ def write_csv(folder, name: str, header, rows) -> Path:
     tmp = folder / f".{name}.tmp"
     if tmp.is_symlink():
         raise ValueError(f"{tmp}: is a link; refusing to write through it")
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0), 0o644)
-    with os.fdopen(fd, "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(header)
-        w.writerows(rows)
-    os.replace(tmp, path)
+    try:
+        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0), 0o644)
+        with os.fdopen(fd, "w", newline="") as fh:
+            w = csv.writer(fh)
+            w.writerow(header)
+            w.writerows(rows)
+        os.replace(tmp, path)
+    except OSError as exc:  # read-only folder, full disk, ...: a clear refusal, not a crash
+        try:
+            if tmp.exists() and not tmp.is_symlink():
+                tmp.unlink()
+        except OSError:
+            pass
+        raise ValueError(f"{path}: cannot write the CSV file ({exc.strerror or exc})") from None
     return path
 
 

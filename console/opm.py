@@ -336,20 +336,11 @@ def looks_like_opm(text: str) -> bool:
 
 def read_opm_file(path) -> OpmDocument:
     """Read an OPM file (see :func:`read_opm`); errors name the file and the line."""
+    from .profiles import read_file_bytes
+
     path = Path(path)
-    try:
-        if path.is_dir():
-            raise ValueError(f"{path}: is a folder, not an OPM file")
-        size = path.stat().st_size
-        if size > MAX_FILE_BYTES:
-            raise ValueError(f"{path}: OPM file is {size} bytes, larger than the {MAX_FILE_BYTES} allowed")
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise ValueError(f"{path}: OPM file not found") from None
-    except PermissionError:
-        raise ValueError(f"{path}: OPM file cannot be read (permission denied)") from None
-    except OSError as exc:
-        raise ValueError(f"{path}: OPM file cannot be read ({exc.strerror or exc})") from None
+    # a regular file only, read with a size limit: a pipe or /dev/zero is refused, never waited on
+    raw = read_file_bytes(path, "OPM file", MAX_FILE_BYTES, a_what="an OPM file")
     try:
         text = raw.decode("ascii")
     except UnicodeDecodeError as exc:
@@ -440,8 +431,10 @@ class _Reader:
                     raise self.err(n, "this is XML; burndesk reads the KVN (keyword = value) form of an OPM")
                 m = _KVN.match(raw)
                 if not m or m.group(1) != "CCSDS_OPM_VERS":
-                    got = m.group(1) if m else raw.strip()[:40]
-                    raise self.err(n, f"an OPM starts with CCSDS_OPM_VERS, found {got!r} "
+                    # name the keyword only: a file that is not an OPM at all (a path in a
+                    # scenario can point anywhere) must not have its content echoed
+                    got = f"keyword {m.group(1)!r}" if m else "a line that is not 'KEYWORD = value'"
+                    raise self.err(n, f"an OPM starts with CCSDS_OPM_VERS, found {got} "
                                       f"({_REF} 7.3.6, Table 3-1)")
             c = _COMMENT.match(raw)
             if c:

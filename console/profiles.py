@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 import os
 import re
+import stat
 import tomllib
 from pathlib import Path
 
@@ -20,6 +21,13 @@ from .units import parse_value
 
 #: Largest profile or scenario file read, bytes.
 MAX_FILE_BYTES = 1_000_000
+#: Most dots in one dotted TOML key or table header.  tomllib's time grows faster than the
+#: square of a key's depth (a 600 kB file of one dotted key took minutes), so deeper keys are
+#: refused before parsing; burndesk's own files nest two levels.
+MAX_KEY_DOTS = 32
+_DEEP_KEY = re.compile(  # MAX_KEY_DOTS "part." in a row; possessive, so linear in the text
+    r"""(?<![A-Za-z0-9_\-"'])(?:(?:[A-Za-z0-9_-]++|"[^"\n]*+"|'[^'\n]*+')[ \t]*+\.[ \t]*+)"""
+    + "{%d}" % MAX_KEY_DOTS)
 _BARE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$")
 
 
@@ -31,16 +39,18 @@ def profiles_dir() -> Path:
     return Path(__file__).resolve().parent.parent / "profiles"
 
 
-def read_toml(path: Path, what: str = "file") -> dict:
-    """Parse a TOML file; errors name the file (and the line for syntax errors)."""
+def read_file_bytes(path: Path, what: str = "file", limit: int = MAX_FILE_BYTES,
+                    a_what: str | None = None) -> bytes:
+    """The bytes of a regular file of at most ``limit`` bytes; errors name the file.
+
+    The file is opened without blocking and checked with ``fstat`` before anything is read, and
+    at most ``limit + 1`` bytes are read: a named pipe (which would block), a device such as
+    ``/dev/zero`` (which never ends) or a folder is refused instead of hanging or filling memory.
+    """
     path = Path(path)
+    a_what = a_what or f"a {what}"
     try:
-        if path.is_dir():
-            raise ValueError(f"{path}: is a folder, not a {what}")
-        size = path.stat().st_size
-        if size > MAX_FILE_BYTES:
-            raise ValueError(f"{path}: {what} is {size} bytes, larger than the {MAX_FILE_BYTES} allowed")
-        raw = path.read_bytes()
+        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
     except FileNotFoundError:
         raise ValueError(f"{path}: {what} not found") from None
     except PermissionError:
@@ -48,13 +58,45 @@ def read_toml(path: Path, what: str = "file") -> dict:
     except OSError as exc:
         raise ValueError(f"{path}: {what} cannot be read ({exc.strerror or exc})") from None
     try:
+        st = os.fstat(fd)
+        if stat.S_ISDIR(st.st_mode):
+            raise ValueError(f"{path}: is a folder, not {a_what}")
+        if not stat.S_ISREG(st.st_mode):
+            raise ValueError(f"{path}: is not a regular file (a device, pipe or socket), so not {a_what}")
+        if st.st_size > limit:
+            raise ValueError(f"{path}: {what} is {st.st_size} bytes, larger than the {limit} allowed")
+        with os.fdopen(fd, "rb") as fh:
+            fd = -1
+            raw = fh.read(limit + 1)
+    except OSError as exc:
+        raise ValueError(f"{path}: {what} cannot be read ({exc.strerror or exc})") from None
+    finally:
+        if fd >= 0:
+            os.close(fd)
+    if len(raw) > limit:
+        raise ValueError(f"{path}: {what} is larger than the {limit} bytes allowed")
+    return raw
+
+
+def read_toml(path: Path, what: str = "file") -> dict:
+    """Parse a TOML file; errors name the file (and the line for syntax errors)."""
+    path = Path(path)
+    raw = read_file_bytes(path, what)
+    try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
         raise ValueError(f"{path}: {what} is not UTF-8 text") from None
+    deep = _DEEP_KEY.search(text)
+    if deep:
+        line = text.count("\n", 0, deep.start()) + 1
+        raise ValueError(f"{path}: {what} is nested too deeply: line {line} has a dotted key of "
+                         f"{MAX_KEY_DOTS + 1} parts or more")
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ValueError(f"{path}: not valid TOML ({exc})") from None
+    except RecursionError:  # tomllib recurses into nested arrays and inline tables
+        raise ValueError(f"{path}: {what} is nested too deeply (arrays or tables inside each other)") from None
 
 
 def resolve_ref(ref, kind: str, base_dir: Path | None, field: str) -> Path:

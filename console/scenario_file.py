@@ -381,6 +381,8 @@ def _is_opm_file(path: Path) -> bool:
     """An OPM given directly: a ``.opm`` name, or text whose first line is CCSDS_OPM_VERS."""
     if path.suffix.lower() == ".opm":
         return True
+    if not path.is_file():  # a pipe or a device is no OPM (and opening a pipe would block)
+        return False
     try:
         with open(path, "rb") as fh:
             head = fh.read(4096)

@@ -58,14 +58,21 @@ def parse_utc(text, field: str = "epoch") -> float:
 
 
 def format_utc(t_s: float, digits: int = 3) -> str:
-    """ISO 8601 UTC string with ``digits`` decimals of seconds (default ms) and a trailing Z."""
+    """ISO 8601 UTC string with ``digits`` decimals of seconds (default ms) and a trailing Z.
+
+    Raises ``ValueError`` for a time that is not finite or lies beyond the calendar.
+    """
     if not math.isfinite(t_s):
         raise ValueError("time is not finite")
     scale = 10 ** digits
     total = round(t_s * scale)
     whole, part = divmod(total, scale)
-    tm = time.gmtime(whole)
-    base = time.strftime("%Y-%m-%dT%H:%M:%S", tm)
+    try:
+        tm = time.gmtime(whole)
+        base = time.strftime("%Y-%m-%dT%H:%M:%S", tm)
+    except (OverflowError, OSError, ValueError):  # beyond the platform's calendar
+        raise ValueError(f"time {t_s:.6g} s from 1970 is too far from the present to be written "
+                         "as a UTC date") from None
     return f"{base}.{part:0{digits}d}Z" if digits else base + "Z"
 
 

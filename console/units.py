@@ -14,7 +14,9 @@ from functools import lru_cache
 _NUMBER = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
 _NAME = r"(?:%|[A-Za-z_\u00b5\u00b0][A-Za-z0-9_\u00b5\u00b0]*)"
 _POWER = r"(?:\s*(?:\*\*|\^)\s*[+-]?\d{1,2})?"
-_UNIT = re.compile(rf"^{_NAME}{_POWER}(?:\s*(?:[*/]|\s)\s*{_NAME}{_POWER})*$")
+# One unambiguous separator between names (a run of blanks, or * or / with optional blanks
+# around it): an ambiguous one made the regex backtrack exponentially on long inputs.
+_UNIT = re.compile(rf"^{_NAME}{_POWER}(?:(?:\s*[*/]\s*|\s+){_NAME}{_POWER})*$")
 
 #: kind -> (pint dimensionality, SI unit, default unit for bare numbers, human name)
 KINDS = {

@@ -702,19 +702,41 @@ class Journal:
                 )
             _repair_side_files(p)
             target = _uri(p, mode="rw")
+        conn = None
         try:
             conn = _connect(target, uri=True, timeout_s=busy_timeout_s)
-        except sqlite3.Error as exc:
-            raise _open_error(p, exc, readonly) from None
-        try:
             schema = _check_opened(p, conn, readonly)
         except JournalError:
             conn.close()
             raise
         except sqlite3.Error as exc:
-            conn.close()
+            if conn is not None:
+                conn.close()
+            if readonly and "immutable=1" not in target and not _wal_has_content(p) \
+                    and _error_class(exc) in ("io", "full") and _disk_full(p):
+                # A full disk leaves no room for the -shm index SQLite makes beside the file:
+                # with nothing pending in a -wal file, read the file as it stands, as in a
+                # read-only folder.
+                return cls._open_as_it_stands(p, busy_timeout_s)
             raise _open_error(p, exc, readonly) from None
         return cls(p, conn, readonly, schema, float(busy_timeout_s))
+
+    @classmethod
+    def _open_as_it_stands(cls, p: Path, busy_timeout_s: float) -> Journal:
+        """Read-only open in SQLite's immutable mode (no -wal or -shm file is touched)."""
+        try:
+            conn = _connect(_uri(p, mode="ro", immutable="1"), uri=True, timeout_s=busy_timeout_s)
+        except sqlite3.Error as exc:
+            raise _open_error(p, exc, True) from None
+        try:
+            schema = _check_opened(p, conn, True)
+        except JournalError:
+            conn.close()
+            raise
+        except sqlite3.Error as exc:
+            conn.close()
+            raise _open_error(p, exc, True) from None
+        return cls(p, conn, True, schema, float(busy_timeout_s))
 
     # ---- properties
 
@@ -1033,10 +1055,28 @@ def _check_opened(path: Path, conn: sqlite3.Connection, readonly: bool) -> int:
     return schema
 
 
+#: Free space (bytes) below which a failing open is put down to a full disk: SQLite needs room
+#: for a 32 KiB -shm index and a few -wal frames beside the journal.
+_FULL_DISK_BYTES = 256 * 1024
+
+
+def _disk_full(path: Path) -> bool:
+    """True when the file system holding ``path`` has (almost) no space left."""
+    try:
+        st = os.statvfs(path.parent)
+    except (OSError, AttributeError):  # no statvfs on this platform
+        return False
+    return st.f_bavail * st.f_frsize < _FULL_DISK_BYTES
+
+
 def _open_error(path: Path, exc: sqlite3.Error, readonly: bool) -> JournalError:
     kind = _error_class(exc)
     if kind == "busy":
         return JournalError(f"session is busy: another burndesk is writing {path}; try again")
+    if kind in ("io", "full") and _disk_full(path):
+        # not damage: SQLite could not make its -shm / -wal files (SQLITE_IOERR_SHMSIZE)
+        return JournalError(f"{path}: cannot open the session journal: the disk holding it is full "
+                            f"({exc}); nothing was changed: free some space and try again")
     if kind in ("corrupt", "io"):
         return JournalError(f"{path}: session journal is damaged ({exc}); {RECOVERY_HINT}")
     if kind in ("readonly", "cantopen"):
