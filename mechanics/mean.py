@@ -36,7 +36,8 @@ from .bodies import Body, check_model
 from .constants import CIRCULAR_E, EQUATORIAL_I_RAD
 from .elements import Elements, cross, rv_to_elements
 from .j2 import secular_rates
-from .kepler import TWO_PI, mean_motion, mean_to_true, true_to_mean, wrap_2pi, wrap_pi
+from .kepler import (TWO_PI, mean_motion, mean_to_true, true_to_eccentric, true_to_mean, wrap_2pi,
+                     wrap_pi)
 
 #: Samples per revolution used for the time averages.
 MEAN_SAMPLES = 64
@@ -206,18 +207,26 @@ def predicted_mean_a(r_m, v_m_s, body: Body) -> float:
     return 1.0 / inv_a
 
 
+#: Above this eccentricity orbit-averaged elements are refused: the 64 samples, even spaced in
+#: eccentric anomaly, no longer resolve the periapsis passage (checked up to e = 0.99).
+MAX_MEAN_E = 0.995
+
+
 def _averaged(r, v, body, model):
     from .flight import fly_samples
 
     osc = rv_to_elements(r, v, body.mu_m3_s2)
+    if osc.e > MAX_MEAN_E:
+        raise ValueError(f"orbit is too eccentric (e = {osc.e:.6f} > {MAX_MEAN_E}) for orbit-averaged "
+                         "mean elements: use model \"two-body\"")
     a_guess = predicted_mean_a(r, v, body)
     _, _, lam_dot = _rates(a_guess, osc.e, osc.i_rad, body)
     y0 = np.concatenate([r, v, [1.0]])
     for _ in range(3):
         window = TWO_PI / lam_dot
-        times = np.arange(MEAN_SAMPLES) * (window / MEAN_SAMPLES)
+        times, weights = _sample_times(osc, window)
         states = fly_samples(y0, times, body, model)
-        mean = _average(times, states, window, lam_dot, body)
+        mean = _average(times, states, window, lam_dot, body, weights)
         _, _, lam_dot_new = _rates(mean.a_m, mean.e, mean.i_rad, body)
         # a window off by a fraction x leaves about x times the short-period amplitude (~6 km
         # in LEO) in the averages: 2e-5 keeps that under 0.15 m
@@ -226,6 +235,32 @@ def _averaged(r, v, body, model):
         if converged:
             break
     return mean, times, states
+
+
+#: Above this eccentricity the samples are spaced evenly in eccentric anomaly, not in time.
+E_SAMPLING_ABOVE = 0.05
+
+
+def _sample_times(osc: Elements, window_s: float):
+    """Sample times over one window and their quadrature weights (summing to the count).
+
+    Near-circular orbits: equally spaced in time, equal weights.  Eccentric ones: equally
+    spaced in the eccentric anomaly E of the start's conic, with weights dt/dE = (1 - e cos E)
+    (the time average is the E-average weighted so), which crowds the samples around periapsis
+    where the osculating elements change fastest; the rule stays exact for trigonometric
+    polynomials in E, so it converges as fast on eccentric orbits as equal time steps do on
+    circular ones.
+    """
+    n = MEAN_SAMPLES
+    e = float(osc.e)
+    if e < E_SAMPLING_ABOVE:
+        return np.arange(n) * (window_s / n), np.ones(n)
+    E0 = float(true_to_eccentric(osc.nu_rad, e))
+    E = E0 + np.arange(n) * (TWO_PI / n)
+    M = E - e * np.sin(E)
+    times = (M - M[0]) * (window_s / TWO_PI)
+    weights = 1.0 - e * np.cos(E)
+    return times, weights * (n / weights.sum())
 
 
 def _rates(a_m, e, i_rad, body):
@@ -238,7 +273,7 @@ def _rates(a_m, e, i_rad, body):
     return raan_dot, argp_dot, argp_dot + m_dot
 
 
-def _average(t, y, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
+def _average(t, y, window_s: float, lam_dot: float, body: Body, w=None) -> MeanOrbit:
     """Mean orbit from states ``y`` (n, >=6) sampled at times ``t`` over one window.
 
     Written out component by component: the per-sample osculating quantities needed are a, the
@@ -246,14 +281,20 @@ def _average(t, y, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
     from each sample's own node (Vallado 2013, eqs. 2-82 to 2-88 in vector form).
     """
     mu = body.mu_m3_s2
+    w = np.ones(len(t)) if w is None else np.asarray(w, dtype=float)
+    wsum = float(w.sum())
+
+    def avg(q):
+        return float(np.dot(w, q)) / wsum
+
     x, yy, z, vx, vy, vz = (y[:, k] for k in range(6))
     r = np.sqrt(x * x + yy * yy + z * z)
     v2 = vx * vx + vy * vy + vz * vz
     rv = x * vx + yy * vy + z * vz
-    a = float(np.mean(1.0 / (2.0 / r - v2 / mu)))
+    a = avg(1.0 / (2.0 / r - v2 / mu))
     hx, hy, hz = yy * vz - z * vy, z * vx - x * vz, x * vy - yy * vx
     hm = np.sqrt(hx * hx + hy * hy + hz * hz)
-    h_hat = np.array([np.mean(hx / hm), np.mean(hy / hm), np.mean(hz / hm)])
+    h_hat = np.array([avg(hx / hm), avg(hy / hm), avg(hz / hm)])
     h_hat /= math.sqrt(float(h_hat @ h_hat))
     i = math.atan2(math.hypot(h_hat[0], h_hat[1]), h_hat[2])
     equatorial = i < EQUATORIAL_I_RAD or i > math.pi - EQUATORIAL_I_RAD
@@ -265,7 +306,7 @@ def _average(t, y, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
         raan_mid = math.atan2(n_hat[1], n_hat[0])
     k = v2 - mu / r
     ex_s, ey_s, ez_s = (k * x - rv * vx) / mu, (k * yy - rv * vy) / mu, (k * z - rv * vz) / mu
-    e_mean = np.array([np.mean(ex_s), np.mean(ey_s), np.mean(ez_s)])
+    e_mean = np.array([avg(ex_s), avg(ey_s), avg(ez_s)])
     m_hat = np.array([h_hat[1] * n_hat[2] - h_hat[2] * n_hat[1], h_hat[2] * n_hat[0] - h_hat[0] * n_hat[2],
                       h_hat[0] * n_hat[1] - h_hat[1] * n_hat[0]])
     ex, ey = float(e_mean @ n_hat), float(e_mean @ m_hat)
@@ -285,7 +326,7 @@ def _average(t, y, window_s: float, lam_dot: float, body: Body) -> MeanOrbit:
     lam_osc = u - nu + (E - e_s * np.sin(E))
     ref = float(lam_osc[0])
     dev = np.mod(lam_osc - lam_dot * t - ref + math.pi, TWO_PI) - math.pi
-    lam0 = ref + float(np.mean(dev))
+    lam0 = ref + avg(dev)
     raan_dot, argp_dot, _ = _rates(a, e, i, body)
     half = 0.5 * window_s
     raan0 = 0.0 if equatorial else raan_mid - raan_dot * half

@@ -264,13 +264,7 @@ def _j2_rhs(mu, j2, R):
     return rhs
 
 
-HIGH_E_ALIASING = ("mechanics/mean.py averages the osculating a over 64 equally spaced times; above "
-                   "e ~ 0.9 the periapsis passage falls between samples (reported, not fixed here)")
-
-
-@pytest.mark.parametrize("e", [0.73, 0.9,
-                               pytest.param(0.99, marks=pytest.mark.xfail(strict=True, reason=HIGH_E_ALIASING)),
-                               pytest.param(0.999999, marks=pytest.mark.xfail(strict=True, reason=HIGH_E_ALIASING))])
+@pytest.mark.parametrize("e", [0.73, 0.9, 0.99, 0.999999])  # the last is refused (MAX_MEAN_E)
 def test_mean_orbit_of_very_eccentric_orbits_under_j2(tmp_path, e):
     """The documented mean a (time average of the osculating a over the averaging window),
     against the same average taken densely along scipy's DOP853 flight; or a clear refusal."""
