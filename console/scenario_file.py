@@ -103,6 +103,8 @@ def parse_state(table, body: Body, where: str = "state") -> tuple[tuple, tuple, 
             if key not in table:
                 raise ValueError(f"{where}.{key}: missing (the vector form needs r and v)")
         r = _vector(table["r"], "length", f"{where}.r")
+        for k, c in enumerate(r):
+            _within_reach(c, f"{where}.r[{k}]", table["r"])
         v = _vector(table["v"], "speed", f"{where}.v")
         check_vector(r, v, body, f"{where}.r", f"{where}.v", where)
         return r, v, form
@@ -110,7 +112,8 @@ def parse_state(table, body: Body, where: str = "state") -> tuple[tuple, tuple, 
         for key in FORMS["elements"]:
             if key not in table:
                 raise ValueError(f"{where}.{key}: missing (the elements form needs a, e, i, raan, argp, nu)")
-        a = parse_value(table["a"], "length", f"{where}.a", allow_zero=False)
+        a = _within_reach(parse_value(table["a"], "length", f"{where}.a", allow_zero=False), f"{where}.a",
+                          table["a"])
         e = parse_value(table["e"], "dimensionless", f"{where}.e")
         if e >= 1.0:
             raise ValueError(f"{where}.e: {e!r} is not below 1: the elements form takes closed orbits "
@@ -241,9 +244,21 @@ def _approaching(r, v) -> bool:
     return float(np.dot(r, v)) < 0.0
 
 
+#: Largest orbit size accepted (m), about 6700 au: beyond it a "state" is a typo, not an orbit
+#: (nearly parabolic orbits reach a few 1e12 m).
+MAX_LENGTH_M = 1e15
+
+
+def _within_reach(x: float, field: str, value) -> float:
+    if abs(x) > MAX_LENGTH_M:
+        raise ValueError(f"{field}: {value!r} is beyond {MAX_LENGTH_M / 1e3:.0e} km: not an orbit "
+                         "burndesk can plan")
+    return x
+
+
 def _altitude(value, body: Body, field: str) -> float:
     """Altitude (m) above the body's radius; refuses one at or inside the surface."""
-    h = parse_value(value, "length", field, allow_negative=True)
+    h = _within_reach(parse_value(value, "length", field, allow_negative=True), field, value)
     if h <= 0.0:
         raise ValueError(f"{field}: {value!r} puts the orbit inside the body (altitude must be above 0)")
     return h

@@ -692,3 +692,12 @@ def test_unquoted_utc_toml_datetime_is_accepted(tmp_path):
     bare = tmp_path / "b.toml"
     bare.write_text('body = "earth"\nepoch = 2027-03-14T06:00:00.250Z\n' + APSIDES)
     assert load_scenario(bare).epoch_s == load_scenario(quoted).epoch_s
+
+
+def test_absurd_sizes_are_refused_with_the_right_reason(tmp_path):
+    # an overflowing semi-major axis used to surface as "velocity is along the radius"
+    path = tmp_path / "far.toml"
+    path.write_text('body = "earth"\nepoch = "2027-01-01T00:00:00Z"\n[state]\n'
+                    'a = "1e200 km"\ne = 0.1\ni = 10\nraan = 0\nargp = 0\nnu = 0\n')
+    with pytest.raises(ValueError, match=r"state\.a: .* is beyond .* not an orbit"):
+        load_scenario(path)
