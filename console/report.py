@@ -12,8 +12,12 @@ def _deg(x):
     return round(math.degrees(x), 9)
 
 
+#: 9999-12-31T23:59:59Z: ISO 8601 (and JSON date-times) have four-digit years.
+LAST_WRITABLE_S = 253402300799.0
+
+
 def utc_or_none(t_s):
-    return None if t_s is None else format_utc(t_s)
+    return None if t_s is None or t_s > LAST_WRITABLE_S else format_utc(t_s)
 
 
 def orbit_json(summary, scenario_name: str | None = None) -> dict:
@@ -39,7 +43,10 @@ def orbit_json(summary, scenario_name: str | None = None) -> dict:
         "period_s": summary.period_s,
         "next_periapsis": utc_or_none(summary.next_periapsis_s),
         "next_apoapsis": utc_or_none(summary.next_apoapsis_s),
-        "notes": list(summary.notes),
+        "notes": list(summary.notes) + [
+            f"next {name} lies beyond the year 9999: not written as a date"
+            for name, t in (("periapsis", summary.next_periapsis_s), ("apoapsis", summary.next_apoapsis_s))
+            if t is not None and t > LAST_WRITABLE_S],
     }
     m = summary.mean
     if m is not None:

@@ -15,6 +15,7 @@ memory) and its energy integral.
 
 from __future__ import annotations
 
+import json
 import math
 import subprocess
 import sys
@@ -233,8 +234,9 @@ def test_nearly_parabolic_orbits_under_two_body(tmp_path, e):
 
 
 def test_nearly_parabolic_orbit_on_the_command_line(tmp_path):
-    """The summary of an e = 0.999999 orbit prints (its apoapsis is 180,000 years away), and one
-    whose apsis times lie beyond the calendar is refused on one line, not with a crash."""
+    """The summary of an e = 0.999999 orbit prints: its apoapsis, 180,000 years away, is null
+    with a note (ISO 8601 years have four digits); an orbit larger than any burndesk plans is
+    refused on one line, not with a crash."""
     for a_km, ok in (("6.878e9", True), ("6.878e15", False)):
         path = scenario_file(tmp_path, f'a = "{a_km} km"\ne = 0.5\ni = 10\nraan = 0\nargp = 0\nnu = 0',
                              name=f"far{ok}")
@@ -244,9 +246,13 @@ def test_nearly_parabolic_orbit_on_the_command_line(tmp_path):
         assert "Traceback" not in proc.stderr
         if ok:
             assert proc.returncode == 0, proc.stderr
+            doc = json.loads(proc.stdout)
+            assert doc["next_apoapsis"] is None
+            assert any("beyond the year 9999" in n for n in doc["notes"])
+            assert doc["next_periapsis"] is not None and len(doc["next_periapsis"]) == 24
         else:
             assert proc.returncode == 2 and len(proc.stderr.splitlines()) == 1, proc.stderr
-            assert "too far from the present" in proc.stderr
+            assert "not an orbit burndesk can plan" in proc.stderr
 
 
 def _j2_rhs(mu, j2, R):
