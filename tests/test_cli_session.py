@@ -16,44 +16,11 @@ import pytest
 
 from mechanics.flight import Thrust, fly
 from mechanics.kepler import propagate_kepler
+sys.path.insert(0, str(Path(__file__).parent))
+from campaign_files import write_campaign  # noqa: E402  (tests/ helper)
 
 ROOT = Path(__file__).resolve().parents[1]
 EXE = str(Path(sys.executable).parent / "burndesk")
-
-SCENARIO = """
-name = "session test"
-body = "earth"
-vehicle = "vehicle.toml"
-epoch = "2027-06-01T00:00:00Z"
-[state]
-periapsis_alt = "500 km"
-apoapsis_alt = "520 km"
-i = "51.6 deg"
-raan = "20 deg"
-argp = "10 deg"
-nu = "300 deg"
-[target]
-kind = "circular"
-altitude = "700 km"
-[options]
-model = "two-body"
-lead_time = "10 min"
-"""
-
-VEHICLE = """
-name = "session test vehicle"
-dry_mass = "500 kg"
-propellant = "60 kg"
-unusable_propellant = "0.5 kg"
-reserve_propellant = "5 kg"
-[[thrusters]]
-count = 2
-thrust = "30 N"
-isp = "230 s"
-[limits]
-max_burn_duration = "20 min"
-"""
-
 
 def run(*args, ok=(0,)):
     proc = subprocess.run([EXE, *map(str, args)], capture_output=True, text=True, timeout=300)
@@ -64,8 +31,7 @@ def run(*args, ok=(0,)):
 
 @pytest.fixture()
 def session(tmp_path):
-    (tmp_path / "vehicle.toml").write_text(VEHICLE)
-    (tmp_path / "scenario.toml").write_text(SCENARIO)
+    write_campaign(tmp_path, name="session test")
     path = tmp_path / "campaign.burn"
     run("session", "init", path, "--scenario", tmp_path / "scenario.toml")
     return path

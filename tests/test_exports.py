@@ -13,43 +13,10 @@ import pytest
 
 from console.exports import (ACTUAL_COLUMNS, ATTITUDE_COLUMNS, PLAN_QUEUE_HEADER, PLANNED_COLUMNS,
                              headers)
+sys.path.insert(0, str(Path(__file__).parent))
+from campaign_files import write_campaign  # noqa: E402  (tests/ helper)
 
 EXE = str(Path(sys.executable).parent / "burndesk")
-
-VEHICLE = """
-name = "export test vehicle"
-dry_mass = "500 kg"
-propellant = "60 kg"
-unusable_propellant = "0.5 kg"
-reserve_propellant = "5 kg"
-[[thrusters]]
-count = 2
-thrust = "30 N"
-isp = "230 s"
-[limits]
-max_burn_duration = "20 min"
-"""
-
-SCENARIO = """
-name = "export test"
-body = "earth"
-vehicle = "vehicle.toml"
-epoch = "2027-06-01T00:00:00Z"
-[state]
-periapsis_alt = "500 km"
-apoapsis_alt = "520 km"
-i = "51.6 deg"
-raan = "20 deg"
-argp = "10 deg"
-nu = "300 deg"
-[target]
-kind = "circular"
-altitude = "700 km"
-[options]
-model = "two-body"
-attitude = "{attitude}"
-lead_time = "10 min"
-"""
 
 #: every numeric column carries its unit in its name (or is a plain ratio / unit vector)
 UNIT_SUFFIXES = ("_s", "_kg", "_m_s", "_N", "_kg_s", "_km", "_utc")
@@ -64,10 +31,8 @@ def run(*args, ok=(0,)):
 
 
 def scenario(tmp_path, attitude="inertial"):
-    (tmp_path / "vehicle.toml").write_text(VEHICLE)
-    p = tmp_path / f"scenario_{attitude}.toml"
-    p.write_text(SCENARIO.format(attitude=attitude))
-    return p
+    return write_campaign(tmp_path, name="export test", attitude=attitude,
+                          file_name=f"scenario_{attitude}.toml")
 
 
 def read_rows(path):

@@ -20,46 +20,13 @@ from jsonschema import Draft202012Validator
 
 from console.opm import write_opm
 from console.scenario_file import load_scenario
+sys.path.insert(0, str(Path(__file__).parent))
+from campaign_files import write_campaign  # noqa: E402  (tests/ helper)
 
 ROOT = Path(__file__).resolve().parents[1]
 EXE = str(Path(sys.executable).parent / "burndesk")
 PLAN_SCHEMA = json.loads((ROOT / "docs" / "plan.schema.json").read_text())
 SESSION_SCHEMA = json.loads((ROOT / "docs" / "session.schema.json").read_text())
-
-VEHICLE = """
-name = "schema test vehicle"
-dry_mass = "500 kg"
-propellant = "{prop}"
-unusable_propellant = "0.5 kg"
-reserve_propellant = "5 kg"
-[[thrusters]]
-count = 2
-thrust = "30 N"
-isp = "230 s"
-[limits]
-max_burn_duration = "20 min"
-"""
-
-SCENARIO = """
-name = "schema test"
-body = "earth"
-vehicle = "vehicle.toml"
-epoch = "2027-06-01T00:00:00Z"
-[state]
-periapsis_alt = "500 km"
-apoapsis_alt = "520 km"
-i = "51.6 deg"
-raan = "20 deg"
-argp = "10 deg"
-nu = "300 deg"
-[target]
-kind = "circular"
-altitude = "{alt}"
-[options]
-model = "two-body"
-attitude = "{attitude}"
-lead_time = "10 min"
-"""
 
 # Field lists required by the planning issue (plan --json) and the session issue (show --json).
 ISSUE_PLAN_FIELDS = {"feasible", "model", "epoch", "body", "initial_state", "burns", "totals", "propellant",
@@ -81,10 +48,8 @@ def run(*args, ok=(0,)):
 
 
 def setup(tmp_path, attitude="inertial", alt="700 km", prop="60 kg"):
-    (tmp_path / "vehicle.toml").write_text(VEHICLE.format(prop=prop))
-    p = tmp_path / f"s_{attitude}_{alt.split()[0]}.toml"
-    p.write_text(SCENARIO.format(attitude=attitude, alt=alt))
-    return p
+    return write_campaign(tmp_path, name="schema test", attitude=attitude, alt=alt, propellant=prop,
+                          file_name=f"s_{attitude}_{alt.split()[0]}.toml")
 
 
 def errors(schema, doc):

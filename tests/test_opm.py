@@ -37,6 +37,8 @@ from console.profiles import load_body
 from console.scenario_file import load_scenario, load_scenario_with_state, load_state_file
 from console.timeutil import format_utc
 from mechanics.flight import tracking_frame
+sys.path.insert(0, str(Path(__file__).parent))
+from campaign_files import VEHICLE, write_campaign  # noqa: E402  (tests/ helper)
 
 EXE = str(Path(sys.executable).parent / "burndesk")
 MU_KM = 398600.4418  # WGS 84 GM, km^3/s^2 (NIMA TR8350.2, 3rd ed., 2000)
@@ -98,21 +100,6 @@ MAN_DV_2 = -0.0005 [km/s]
 MAN_DV_3 = 0.0002 [km/s]
 USER_DEFINED_EARTH_MODEL = WGS-84
 """
-
-VEHICLE = """
-name = "OPM test vehicle"
-dry_mass = "500 kg"
-propellant = "60 kg"
-unusable_propellant = "0.5 kg"
-reserve_propellant = "5 kg"
-[[thrusters]]
-count = 2
-thrust = "30 N"
-isp = "230 s"
-[limits]
-max_burn_duration = "20 min"
-"""
-
 
 def line_of(text: str, start: str, nth: int = 1) -> int:
     hits = [k for k, ln in enumerate(text.splitlines(), start=1) if ln.startswith(start)]
@@ -405,33 +392,9 @@ def test_write_read_round_trip_property(rp_km, ra_extra_km, i_deg, raan_deg, arg
     assert back.mass_kg == pytest.approx(mass, abs=5e-7)
 
 
-SCENARIO = """
-name = "opm plan"
-body = "earth"
-vehicle = "vehicle.toml"
-epoch = "2027-06-01T00:00:00Z"
-[state]
-periapsis_alt = "500 km"
-apoapsis_alt = "520 km"
-i = "51.6 deg"
-raan = "20 deg"
-argp = "10 deg"
-nu = "300 deg"
-[target]
-kind = "{kind}"
-altitude = "{alt}"
-[options]
-model = "two-body"
-attitude = "{attitude}"
-lead_time = "10 min"
-"""
-
-
 def _setup(tmp_path, attitude="inertial", kind="circular", alt="700 km"):
-    (tmp_path / "vehicle.toml").write_text(VEHICLE)
-    p = tmp_path / "scenario.toml"
-    p.write_text(SCENARIO.format(attitude=attitude, kind=kind, alt=alt))
-    return p
+    return write_campaign(tmp_path, name="opm plan", attitude=attitude, kind=kind, alt=alt,
+                          vehicle_name="OPM test vehicle")
 
 
 def _t(text):
@@ -513,9 +476,8 @@ def test_plan_opm_refuses_to_overwrite_unless_forced(tmp_path):
 
 
 def test_infeasible_plan_still_writes_its_opm_with_the_warning(tmp_path):
-    (tmp_path / "vehicle.toml").write_text(VEHICLE.replace('propellant = "60 kg"', 'propellant = "6 kg"'))
-    scen = tmp_path / "scenario.toml"
-    scen.write_text(SCENARIO.format(attitude="inertial", kind="circular", alt="900 km"))
+    scen = write_campaign(tmp_path, name="opm plan", alt="900 km", propellant="6 kg",
+                          vehicle_name="OPM test vehicle")
     out = tmp_path / "q.opm"
     run("plan", scen, "--opm", out, ok=(3,))
     opm = read_opm_file(out)
@@ -558,7 +520,7 @@ def test_names_are_written_as_printable_ascii():
 def _opm_scenario(tmp_path, epoch_line="", state='opm = "od/hand.opm"', body="earth", text=HAND):
     (tmp_path / "od").mkdir(exist_ok=True)
     (tmp_path / "od" / "hand.opm").write_text(text)
-    (tmp_path / "vehicle.toml").write_text(VEHICLE)
+    (tmp_path / "vehicle.toml").write_text(VEHICLE.format(vehicle_name="OPM test vehicle", propellant="60 kg"))
     p = tmp_path / "scen.toml"
     p.write_text(f'name = "from OD"\nbody = "{body}"\nvehicle = "vehicle.toml"\n{epoch_line}\n'
                  f'[state]\n{state}\n[target]\nkind = "circular"\naltitude = "900 km"\n'
