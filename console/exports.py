@@ -12,8 +12,10 @@ and a name that is a link is refused, so nothing outside the folder is ever over
 from __future__ import annotations
 
 import csv
-import os
+import io
 from pathlib import Path
+
+from .files import write_text_file
 
 from .timeutil import format_utc
 
@@ -84,28 +86,11 @@ def write_csv(folder, name: str, header, rows) -> Path:
         When the file name or its temporary twin is a link, or the file cannot be written
         (read-only folder, full disk).
     """
-    folder = Path(folder)
-    path = folder / name
-    if path.is_symlink():
-        raise ValueError(f"{path}: is a link; refusing to write through it")
-    tmp = folder / f".{name}.tmp"
-    if tmp.is_symlink():
-        raise ValueError(f"{tmp}: is a link; refusing to write through it")
-    try:
-        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0), 0o644)
-        with os.fdopen(fd, "w", newline="") as fh:
-            w = csv.writer(fh)
-            w.writerow(header)
-            w.writerows(rows)
-        os.replace(tmp, path)
-    except OSError as exc:  # read-only folder, full disk, ...: a clear refusal, not a crash
-        try:
-            if tmp.exists() and not tmp.is_symlink():
-                tmp.unlink()
-        except OSError:
-            pass
-        raise ValueError(f"{path}: cannot write the CSV file ({exc.strerror or exc})") from None
-    return path
+    buf = io.StringIO()
+    w = csv.writer(buf)
+    w.writerow(header)
+    w.writerows(rows)
+    return write_text_file(Path(folder) / name, buf.getvalue(), what="CSV file")
 
 
 #: Header of a plan's queue.csv.

@@ -45,11 +45,12 @@ from __future__ import annotations
 import csv
 import io
 import math
-import os
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+
+from .files import write_text_file
 
 #: Largest fleet file read, bytes.
 MAX_FLEET_BYTES = 200_000_000
@@ -562,19 +563,8 @@ def check_outputs(fleet_path, paths, force: bool) -> None:
 
 
 def write_text(path: Path, text: str) -> Path:
-    """Write ``text`` whole: a temporary file beside ``path``, then renamed over it."""
-    path = Path(path)
-    tmp = path.with_name(f".{path.name}.tmp")
-    if tmp.is_symlink():
-        raise ValueError(f"{tmp}: is a link; refusing to write through it")
-    try:
-        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0), 0o644)
-        with os.fdopen(fd, "w", newline="", encoding="utf-8") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise ValueError(f"{path}: cannot be written ({exc.strerror or exc})") from None
-    return path
+    """Write ``text`` whole (see :mod:`console.files`)."""
+    return write_text_file(path, text, what="fleet output", encoding="utf-8")
 
 
 @dataclass(frozen=True)

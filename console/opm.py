@@ -55,7 +55,6 @@ from __future__ import annotations
 
 import calendar
 import math
-import os
 import re
 import time
 from dataclasses import dataclass, field
@@ -336,7 +335,7 @@ def looks_like_opm(text: str) -> bool:
 
 def read_opm_file(path) -> OpmDocument:
     """Read an OPM file (see :func:`read_opm`); errors name the file and the line."""
-    from .profiles import read_file_bytes
+    from .files import read_file_bytes
 
     path = Path(path)
     # a regular file only, read with a size limit: a pipe or /dev/zero is refused, never waited on
@@ -993,42 +992,9 @@ def save_text(text: str, path, *, force: bool = False, what: str = "OPM file") -
         raise ValueError(f"{path}: already exists; refusing to overwrite it (use --force)")
     if path.is_dir():
         raise ValueError(f"{path}: is a folder")
-    tmp = folder / f".{path.name}.tmp"
-    if tmp.is_symlink():
-        raise ValueError(f"{tmp}: is a link; refusing to write through it")
-    try:
-        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0), 0o644)
-        with os.fdopen(fd, "w", newline="\n", encoding="ascii") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        if force:
-            os.replace(tmp, path)
-        else:
-            _link_or_copy(tmp, path, text)  # fails if the name was taken meanwhile: never overwrites
-    except FileExistsError:
-        raise ValueError(f"{path}: already exists; refusing to overwrite it (use --force)") from None
-    except OSError as exc:
-        raise ValueError(f"{path}: cannot write the {what} ({exc.strerror or exc})") from None
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    return path
+    from .files import write_text_file
 
-
-def _link_or_copy(tmp: Path, path: Path, text: str) -> None:
-    """Give the finished temporary file the name ``path`` without ever replacing a file there:
-    a hard link where the file system has them, else an exclusive create and a copy."""
-    try:
-        os.link(tmp, path)
-        return
-    except FileExistsError:
-        raise
-    except OSError:
-        pass
-    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0), 0o644)
-    with os.fdopen(fd, "w", newline="\n", encoding="ascii") as fh:
-        fh.write(text)
+    return write_text_file(path, text, what=what, replace=force, encoding="ascii", newline="\n")
 
 
 __all__ = ["OpmDocument", "OpmKeplerian", "OpmManeuver", "OpmComment", "read_opm", "read_opm_file",

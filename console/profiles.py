@@ -10,17 +10,15 @@ from __future__ import annotations
 import math
 import os
 import re
-import stat
 import tomllib
 from pathlib import Path
 
 from mechanics.bodies import Body
 from mechanics.vehicle import Thruster, Tolerances, Vehicle
 
+from .files import MAX_FILE_BYTES, read_file_bytes
 from .units import parse_value
 
-#: Largest profile or scenario file read, bytes.
-MAX_FILE_BYTES = 1_000_000
 #: Most dots in one dotted TOML key or table header.  tomllib's time grows faster than the
 #: square of a key's depth (a 600 kB file of one dotted key took minutes), so deeper keys are
 #: refused before parsing; burndesk's own files nest two levels.
@@ -37,45 +35,6 @@ def profiles_dir() -> Path:
     if env:
         return Path(env)
     return Path(__file__).resolve().parent.parent / "profiles"
-
-
-def read_file_bytes(path: Path, what: str = "file", limit: int = MAX_FILE_BYTES,
-                    a_what: str | None = None) -> bytes:
-    """The bytes of a regular file of at most ``limit`` bytes; errors name the file.
-
-    The file is opened without blocking and checked with ``fstat`` before anything is read, and
-    at most ``limit + 1`` bytes are read: a named pipe (which would block), a device such as
-    ``/dev/zero`` (which never ends) or a folder is refused instead of hanging or filling memory.
-    """
-    path = Path(path)
-    a_what = a_what or f"a {what}"
-    try:
-        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
-    except FileNotFoundError:
-        raise ValueError(f"{path}: {what} not found") from None
-    except PermissionError:
-        raise ValueError(f"{path}: {what} cannot be read (permission denied)") from None
-    except OSError as exc:
-        raise ValueError(f"{path}: {what} cannot be read ({exc.strerror or exc})") from None
-    try:
-        st = os.fstat(fd)
-        if stat.S_ISDIR(st.st_mode):
-            raise ValueError(f"{path}: is a folder, not {a_what}")
-        if not stat.S_ISREG(st.st_mode):
-            raise ValueError(f"{path}: is not a regular file (a device, pipe or socket), so not {a_what}")
-        if st.st_size > limit:
-            raise ValueError(f"{path}: {what} is {st.st_size} bytes, larger than the {limit} allowed")
-        with os.fdopen(fd, "rb") as fh:
-            fd = -1
-            raw = fh.read(limit + 1)
-    except OSError as exc:
-        raise ValueError(f"{path}: {what} cannot be read ({exc.strerror or exc})") from None
-    finally:
-        if fd >= 0:
-            os.close(fd)
-    if len(raw) > limit:
-        raise ValueError(f"{path}: {what} is larger than the {limit} bytes allowed")
-    return raw
 
 
 def read_toml(path: Path, what: str = "file") -> dict:
