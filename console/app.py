@@ -25,7 +25,7 @@ import functools
 import os
 from pathlib import Path
 
-from textual import work
+from textual import events, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
@@ -387,7 +387,9 @@ class BurndeskApp(App):
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         table = self.query_one(QueueTable)
         if event.data_table is table:
-            self.query_one(BurnDetails).row = table.rows_by_key.get(event.row_key.value)
+            # an empty queue (before the first replan, or while it is refilled) highlights no row
+            key = event.row_key.value if event.row_key is not None else None
+            self.query_one(BurnDetails).row = table.rows_by_key.get(key)
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         if event.data_table is self.query_one(QueueTable):
@@ -395,9 +397,16 @@ class BurndeskApp(App):
 
     # -- actions -----------------------------------------------------------------------------
     def check_action(self, action: str, parameters) -> bool | None:
+        if self.return_code is not None:
+            return False  # quitting: a key typed meanwhile opens nothing
         if action in self.MAIN_ONLY and len(self.screen_stack) > 1:
             return False
         return True
+
+    async def on_event(self, event) -> None:
+        if isinstance(event, events.Key) and self.return_code is not None:
+            return  # keys typed after quitting go nowhere: the screens are being taken down
+        await super().on_event(event)
 
     def _body(self):
         from mechanics.session.reducer import scenario_of
@@ -480,6 +489,11 @@ class BurndeskApp(App):
         v = self.current_view
         return v is not None and not self.replanning and v.last_seq == self.session.state.last_seq
 
+    def _already_closed(self, dialog) -> bool:
+        """A dialog submitted twice (F2 F2 faster than the app handles them) is closed by the first
+        submission; the second must write nothing."""
+        return dialog not in self.screen_stack
+
     @guarded
     def action_record(self) -> None:
         if not self._view_is_current():
@@ -496,6 +510,8 @@ class BurndeskApp(App):
 
     @guarded
     def on_record_screen_submitted(self, message: RecordScreen.Submitted) -> None:
+        if self._already_closed(message.dialog):
+            return
         dialog = message.dialog
         if not self._view_is_current():
             dialog.show_errors({GENERAL: "the queue changed meanwhile: wait for the replan, check the burn, "
@@ -536,6 +552,8 @@ class BurndeskApp(App):
 
     @guarded
     def on_gauge_screen_submitted(self, message: GaugeScreen.Submitted) -> None:
+        if self._already_closed(message.dialog):
+            return
         try:
             seq = self.session.gauge(message.epoch_s, message.propellant_kg, message.method)
         except ValueError as exc:
@@ -552,6 +570,8 @@ class BurndeskApp(App):
 
     @guarded
     def on_retract_screen_submitted(self, message: RetractScreen.Submitted) -> None:
+        if self._already_closed(message.dialog):
+            return
         try:
             seq = self.session.retract(message.entry, message.reason)
         except ValueError as exc:
@@ -574,10 +594,21 @@ class BurndeskApp(App):
     def on_export_screen_submitted(self, message: ExportScreen.Submitted) -> None:
         from .session_ops import export_csv
 
-        folder = Path(message.folder).expanduser()
+        if self._already_closed(message.dialog):
+            return
+        try:
+            folder = Path(message.folder).expanduser()
+        except RuntimeError as exc:  # "~name" of no known user
+            message.dialog.show_errors({"folder": f"folder: {message.folder!r}: cannot expand '~' ({exc})"})
+            return
+        if not folder.is_absolute():  # relative to the session file, not to wherever we started
+            folder = Path(self.session.journal.path).resolve().parent / folder
         try:
             if not folder.exists():
-                folder.mkdir(parents=True)
+                if not folder.parent.is_dir():
+                    raise ValueError(f"{folder.parent} does not exist: only the last folder of the path "
+                                     "is created")
+                folder.mkdir()
             written = export_csv(self.current_view, folder)
         except (ValueError, OSError) as exc:
             message.dialog.show_errors({"folder": f"folder: {exc}"})

@@ -316,8 +316,9 @@ class ExportScreen(_FormDialog):
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog export"):
-            yield Static(Text("queue.csv, ledger.csv and drift.csv (units in the headers); a missing "
-                              "folder is created", style="dim"), classes="dialog-note")
+            yield Static(Text("queue.csv, ledger.csv and drift.csv (units in the headers); a relative "
+                              "folder is taken beside the session file, and only its last part is "
+                              "created if missing", style="dim"), classes="dialog-note")
             with FormBase(id="export-form"):
                 yield Field("folder", "folder", placeholder="/path/to/folder", value=self.folder)
             yield Static("", classes="dialog-error")

@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 
 from console.app import BurndeskApp, open_or_create
+from console.screens import ExportScreen
 from console.timeutil import format_duration, format_utc, parse_utc
 from mechanics.elements import Elements, apsides_to_elements, elements_to_rv
 from mechanics.session.events import BurnRecorded, EntryRetracted, GaugeReadingTaken, StateEntered, TargetSet
@@ -509,6 +510,31 @@ async def test_export_writes_the_three_csv_files(tmp_path):
                 rows = list(csv.DictReader(fh))
             assert [int(r["burn"]) for r in rows] == [r.index for r in app.current_view.rows]
             assert (tmp_path / "out" / "ledger.csv").exists() and (tmp_path / "out" / "drift.csv").exists()
+    finally:
+        session.close()
+
+
+async def test_export_takes_relative_folders_beside_the_session_and_creates_one_level(tmp_path, monkeypatch):
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)  # where the console was started: nothing may land here
+    session = make_session(tmp_path)
+    try:
+        app = console(session)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await settle(pilot)
+            await pilot.press("f7")
+            await pilot.pause()
+            await type_into(pilot, app.screen.query_one("#in-folder"), "deep/er/out")
+            await pilot.press("f2")
+            await pilot.pause()
+            assert isinstance(app.screen, ExportScreen)  # refused: two missing levels
+            assert not (session.journal.path.parent / "deep").exists()
+            await type_into(pilot, app.screen.query_one("#in-folder"), "out")
+            await pilot.press("f2")
+            await pilot.pause()
+            assert (session.journal.path.parent / "out" / "queue.csv").exists()
+            assert list(elsewhere.iterdir()) == []
     finally:
         session.close()
 
