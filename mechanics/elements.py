@@ -159,12 +159,15 @@ def rv_to_elements(r_m, v_m_s, mu_m3_s2: float) -> Elements:
     """
     r = np.asarray(r_m, dtype=float)
     v = np.asarray(v_m_s, dtype=float)
+    if r.shape == (3,) and v.shape == (3,):  # one state: plain floats, no array overhead
+        rl, vl = r.tolist(), v.tolist()
+        if not all(math.isfinite(c) for c in rl + vl):
+            raise ValueError("state holds a non-finite number")
+        return _rv_to_elements_one(rl, vl, float(mu_m3_s2))
     if r.shape[-1:] != (3,) or v.shape[-1:] != (3,):
         raise ValueError("position and velocity must each have three components")
     if not (np.all(np.isfinite(r)) and np.all(np.isfinite(v))):
         raise ValueError("state holds a non-finite number")
-    if r.shape == (3,) and v.shape == (3,):
-        return _rv_to_elements_one(r.tolist(), v.tolist(), float(mu_m3_s2))
     rmag = _norm(r)
     if np.any(rmag <= 0.0):
         raise ValueError("position is at the body's centre")

@@ -242,13 +242,15 @@ def _unit(x):
 
 
 def _radius_toward(mean: MeanOrbit, direction) -> float:
-    """Radius (m) of the mean ellipse in the inertial ``direction`` (projected on its plane)."""
+    """Radius (m) of the mean ellipse in the inertial ``direction`` (projected on its plane).
+
+    The direction's argument of latitude u is measured from the node n = (cos O, sin O, 0)
+    toward m = h x n = (-cos i sin O, cos i cos O, sin i); then r = p / (1 + e cos(u - argp)).
+    """
     i, raan = mean.i_rad, mean.raan_rad
-    h_hat = np.array([math.sin(raan) * math.sin(i), -math.cos(raan) * math.sin(i), math.cos(i)])
-    n_hat = np.array([math.cos(raan), math.sin(raan), 0.0])
-    m_hat = np.cross(h_hat, n_hat)
-    d = np.asarray(direction, dtype=float)
-    u = math.atan2(float(d @ m_hat), float(d @ n_hat))
+    co, so, ci, si = math.cos(raan), math.sin(raan), math.cos(i), math.sin(i)
+    dx, dy, dz = (float(c) for c in direction)
+    u = math.atan2(-dx * ci * so + dy * ci * co + dz * si, dx * co + dy * so)
     p = mean.a_m * (1.0 - mean.e * mean.e)
     return p / (1.0 + mean.e * math.cos(u - mean.argp_rad))
 
@@ -537,7 +539,7 @@ class _Campaign:
         burns: list[PlannedBurn] = []
         snapshots: list[_Snapshot] = []
         for g, leg in enumerate(legs):
-            group, group_snaps, snap = self._fly_leg(g, leg, snap, circular and g == 0)
+            group, group_snaps, snap = self._fly_leg(g, leg, snap, circular and g == 0, legs)
             if g == len(legs) - 2 and not self.ran_dry:
                 group, group_snaps, snap = self._anticipate(legs, group, group_snaps, snap)
             burns.extend(group)
@@ -551,7 +553,7 @@ class _Campaign:
         self.final_y, self.final_mean = snap.y, snap.mean
         return burns
 
-    def _split_count(self, snap: _Snapshot, dv_leg: float, r_b: float, r_goal: float) -> int:
+    def _split_count(self, mass_kg: float, dv_leg: float, r_b: float, r_other: float, r_goal: float) -> int:
         """Smallest N whose longest burn keeps within both vehicle limits (see module notes).
 
         The N burns of a leg deliver equal delta-v, so the first, at the highest mass, is the
@@ -564,8 +566,7 @@ class _Campaign:
         if split == "off":
             return 1
         mu = self.sc.body.mu_m3_s2
-        m = float(snap.y[6])
-        r_other = snap.mean.apoapsis_radius_m + snap.mean.periapsis_radius_m - r_b
+        m = mass_kg
         rate = max(vis_viva_speed(r_b, 0.5 * (r_b + r_other), mu),
                    vis_viva_speed(r_b, 0.5 * (r_b + r_goal), mu)) / r_b
         lim_d, lim_arc = self.limit_s * SPLIT_MARGIN, self.limit_arc * SPLIT_MARGIN
@@ -584,11 +585,11 @@ class _Campaign:
             n += 1
         return n
 
-    def _fly_leg(self, g: int, leg: Leg, snap: _Snapshot, circular: bool):
+    def _fly_leg(self, g: int, leg: Leg, snap: _Snapshot, circular: bool, legs=()):
         mu = self.sc.body.mu_m3_s2
         r_b, r_o = _leg_radii(leg, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
         dv_leg = apsis_burn_dv(r_b, r_o, leg.goal_radius_m, mu)
-        n = self._split_count(snap, abs(dv_leg), r_b, leg.goal_radius_m)
+        n = self._split_count(float(snap.y[6]), abs(dv_leg), r_b, r_o, leg.goal_radius_m)
         m = float(snap.y[6])
         per_burn_s = min(self.engine.duration_for_dv(m, abs(dv_leg) / n),
                          max(m - self.dry_floor, 0.0) / self.engine.mdot_kg_s)
@@ -606,6 +607,16 @@ class _Campaign:
         burns, snaps = [], []
         for k, goal in enumerate(goals):
             placement = "any" if (k == 0 and circular) else later
+            if k == n - 1 and k > 0 and len(legs) >= 2 and g == len(legs) - 2:
+                # the last burn of the second-last leg: aim off by the last leg's expected drift
+                # of its burn point, measured on this leg's burns so far (no re-fly needed)
+                r_b_last = goal
+                r_o_last = r_b
+                a_last = 0.5 * (r_b_last + r_o_last)
+                drift = self._predicted_drift(legs, burns, snaps, r_b_last, r_o_last,
+                                              float(snap.y[6]), a_last)
+                if drift is not None and abs(drift) >= 0.5 * TARGET_TOLERANCE_M:
+                    goal -= drift
             snaps.append(snap)
             tol = GOAL_TOLERANCE_M if k == len(goals) - 1 else INTERMEDIATE_TOLERANCE_M
             burn, snap = self._fly_burn(g, placement, goal, leg.sense, snap, tol)
@@ -614,13 +625,14 @@ class _Campaign:
                 break
         return burns, snaps, snap
 
-    def _anticipate(self, legs, group, snaps, snap):
-        """Re-aim the last burn of the second-last leg so that the last leg's finite burns,
-        which move the radius of their burn point a little, leave it at the target.
+    def _predicted_drift(self, legs, group, snaps, r_b, r_o, mass_kg, a_m) -> float | None:
+        """How far the last leg's finite burns will move the radius of their burn point, m.
 
         Each finite tangential burn centred on an apsis moves that apsis by close to
         c * sense * dv * arc^2 (a second-order effect of the arc, like the cosine loss); c is
-        measured on this leg's own burns and applied to the last leg's estimated burns.
+        measured on the burns of the second-last leg flown so far (``group``, with the
+        snapshots before them) and applied to the last leg, whose burn point is at ``r_b``
+        and opposite apsis at ``r_o``.  ``None`` when nothing was measured.
         """
         coef = []
         for b, pre in zip(group, snaps):
@@ -629,17 +641,24 @@ class _Campaign:
                 coef.append((b.after_radius_at_burn_point_m - before)
                             / (b.sense * b.dv_m_s * b.arc_rad ** 2))
         if not coef:
-            return group, snaps, snap
-        c = float(np.mean(coef))
+            return None
         last = legs[-1]
         mu = self.sc.body.mu_m3_s2
-        r_b, r_o = _leg_radii(last, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
         dv_last = abs(apsis_burn_dv(r_b, r_o, last.goal_radius_m, mu))
-        n = self._split_count(snap, dv_last, r_b, last.goal_radius_m)
-        m = float(snap.y[6])
-        arc = self.engine.duration_for_dv(m, dv_last / n) * vis_viva_speed(r_b, snap.mean.a_m, mu) / r_b
-        drift = c * last.sense * dv_last * arc ** 2
-        if abs(drift) < 0.5 * TARGET_TOLERANCE_M:
+        lim_n = self._split_count(mass_kg, dv_last, r_b, r_o, last.goal_radius_m)
+        arc = self.engine.duration_for_dv(mass_kg, dv_last / lim_n) * vis_viva_speed(r_b, a_m, mu) / r_b
+        return float(np.mean(coef)) * last.sense * dv_last * arc ** 2
+
+    def _anticipate(self, legs, group, snaps, snap):
+        """After a second-last leg of a single burn: re-fly it aimed so that the last leg's
+        drift (see :meth:`_predicted_drift`) leaves the burn point at the target.  (A split
+        leg aims its last burn so before flying it, in :meth:`_fly_leg`.)"""
+        if len(group) != 1:
+            return group, snaps, snap
+        last = legs[-1]
+        r_b, r_o = _leg_radii(last, (snap.mean.periapsis_radius_m, snap.mean.apoapsis_radius_m))
+        drift = self._predicted_drift(legs, group, snaps, r_b, r_o, float(snap.y[6]), snap.mean.a_m)
+        if drift is None or abs(drift) < 0.5 * TARGET_TOLERANCE_M:
             return group, snaps, snap
         prev, restart = group[-1], snaps[-1]
         history = self._offsets.get((prev.leg, prev.placement))
