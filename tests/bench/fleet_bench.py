@@ -178,10 +178,17 @@ def scalar_plan(row: dict, vehicle, body) -> list[tuple]:
         r_b, r_o = (ra, rp) if leg.burn_at == "apoapsis" else (rp, ra)
         dv_leg = apsis_burn_dv(r_b, r_o, leg.goal_radius_m, mu)
         dur = float(propellant_for_dv(isp, mass, abs(dv_leg))) / mdot
-        rate = vis_viva_speed(r_b, 0.5 * (rp + ra), mu) / r_b
-        need = max(dur / (vehicle.max_burn_duration_s * SPLIT_MARGIN),
-                   dur * rate / (vehicle.max_burn_arc_rad * SPLIT_MARGIN), 1.0)
+        rate = max(vis_viva_speed(r_b, 0.5 * (rp + ra), mu),
+                   vis_viva_speed(r_b, 0.5 * (r_b + leg.goal_radius_m), mu)) / r_b
+        lim_d = vehicle.max_burn_duration_s * SPLIT_MARGIN
+        lim_arc = vehicle.max_burn_arc_rad * SPLIT_MARGIN
+        need = max(dur / lim_d, dur * rate / lim_arc, 1.0)
         n = int(math.ceil(need - 1e-9))
+        while n < 200:  # the first, heaviest burn of dv/n is the longest: add burns until it fits
+            first = float(propellant_for_dv(isp, mass, abs(dv_leg) / n)) / mdot
+            if first <= lim_d and first * rate <= lim_arc:
+                break
+            n += 1
         later = leg.burn_at if leg.burn_at != "any" else ("periapsis" if leg.sense > 0 else "apoapsis")
         for k in range(n):
             goal = leg.goal_radius_m if k == n - 1 else opposite_apsis_after(r_b, r_o, dv_leg * (k + 1) / n, mu)
