@@ -34,7 +34,7 @@ from textual.reactive import reactive
 from textual.widgets import DataTable, Footer, TabbedContent, TabPane
 from textual.worker import get_current_worker
 
-from .forms import GENERAL, FormErrors, field_of, read_epoch, read_state, read_target
+from .forms import GENERAL, FormErrors, field_of, read_target, read_timed_state
 from .screens import ExportScreen, GaugeScreen, HelpScreen, RecordScreen, RetractScreen
 from .timeutil import now_s as system_now_s
 from .widgets import (LEVEL_TEXT, BurnDetails, DriftView, LedgerView, OrbitSketch, QueueFooter, QueueTable,
@@ -408,6 +408,10 @@ class BurndeskApp(App):
             return  # keys typed after quitting go nowhere: the screens are being taken down
         await super().on_event(event)
 
+    def _session_dir(self) -> Path:
+        """Where relative file names typed in the console are taken: beside the session file."""
+        return Path(self.session.journal.path).resolve().parent
+
     def _body(self):
         from mechanics.session.reducer import scenario_of
 
@@ -429,18 +433,10 @@ class BurndeskApp(App):
             return
         body = self._body()
         form, raw, epoch_text = ed.values()
-        errors = {}
-        epoch = r = v = None
         try:
-            epoch = read_epoch(epoch_text)
+            epoch, r, v = read_timed_state(form, raw, epoch_text, body, self._session_dir())
         except FormErrors as exc:
-            errors.update(exc.errors)
-        try:
-            r, v = read_state(form, raw, body)
-        except FormErrors as exc:
-            errors.update(exc.errors)
-        if errors:
-            ed.show_errors(errors)
+            ed.show_errors(exc.errors)
             self.notify("state not applied: see the State form", severity="warning", markup=False)
             return
         from mechanics.session.events import OrbitState
@@ -506,7 +502,7 @@ class BurndeskApp(App):
                                                       if self.current_view.plan_error else ""),
                         severity="warning", markup=False)
             return
-        self.push_screen(RecordScreen(nxt.planned, self._body()))
+        self.push_screen(RecordScreen(nxt.planned, self._body(), self._session_dir()))
 
     @guarded
     def on_record_screen_submitted(self, message: RecordScreen.Submitted) -> None:
@@ -602,7 +598,7 @@ class BurndeskApp(App):
             message.dialog.show_errors({"folder": f"folder: {message.folder!r}: cannot expand '~' ({exc})"})
             return
         if not folder.is_absolute():  # relative to the session file, not to wherever we started
-            folder = Path(self.session.journal.path).resolve().parent / folder
+            folder = self._session_dir() / folder
         try:
             if not folder.exists():
                 if not folder.parent.is_dir():

@@ -22,10 +22,11 @@ STATE_FIELDS = {
     "vector": ("r", "v"),
     "elements": ("a", "e", "i", "raan", "argp", "nu"),
     "apsides": ("periapsis_alt", "apoapsis_alt", "i", "raan", "argp", "nu"),
+    "opm": ("opm",),  # a CCSDS orbit parameter message file: its EPOCH is the epoch
 }
 STATE_FORMS = tuple(STATE_FIELDS)
 #: fields that may stay empty, per form
-OPTIONAL_STATE = {"vector": (), "elements": (), "apsides": ("i", "raan", "argp", "nu")}
+OPTIONAL_STATE = {"vector": (), "elements": (), "apsides": ("i", "raan", "argp", "nu"), "opm": ()}
 #: the unit kind of every scalar state field (vectors are checked by parse_state)
 _STATE_KINDS = {"a": "length", "e": "dimensionless", "i": "angle", "raan": "angle", "argp": "angle",
                 "nu": "angle", "periapsis_alt": "length", "apoapsis_alt": "length"}
@@ -64,6 +65,54 @@ def read_epoch(text: str, field: str = "epoch") -> float:
         return parse_utc(text.strip(), field)
     except ValueError as exc:
         raise FormErrors({field: str(exc)}) from None
+
+
+def read_timed_state(form: str, raw: dict, epoch_text: str, body, base_dir=None,
+                     where: str = "state", epoch_field: str = "epoch") -> tuple[float, tuple, tuple]:
+    """(epoch UTC s, r, v) from a state form and its epoch field.
+
+    In the ``"opm"`` form the message's EPOCH is the epoch: the epoch field may stay empty, and
+    if it is filled it must agree with the message to a microsecond.  A relative file name is
+    taken in ``base_dir`` (the session's folder).
+
+    Raises
+    ------
+    FormErrors
+        Per field, as :func:`read_state`; for a message, the ``opm`` field names the file line.
+    """
+    if form != "opm":
+        errors, epoch, r = {}, None, None
+        try:
+            epoch = read_epoch(epoch_text, epoch_field)
+        except FormErrors as exc:
+            errors.update(exc.errors)
+        try:
+            r, v = read_state(form, raw, body, where)
+        except FormErrors as exc:
+            errors.update(exc.errors)
+        if errors:
+            raise FormErrors(errors)
+        return epoch, r, v
+    from pathlib import Path
+
+    from .scenario_file import load_state_file
+
+    text = str(raw.get("opm", "")).strip()
+    if not text:
+        raise FormErrors({"opm": f"{where}.opm: give the orbit parameter message's file"})
+    path = Path(text).expanduser()
+    if not path.is_absolute() and base_dir is not None:
+        path = Path(base_dir) / path
+    try:
+        st = load_state_file(path, body)
+    except (ValueError, RuntimeError) as exc:
+        raise FormErrors({"opm": f"{where}.opm: {exc}"}) from None
+    if epoch_text.strip():
+        given = read_epoch(epoch_text, epoch_field)
+        if abs(given - st.epoch_s) > 1e-6:
+            raise FormErrors({epoch_field: f"{epoch_field}: {epoch_text.strip()} disagrees with the message's "
+                                           f"EPOCH {format_utc(st.epoch_s, 6)}: clear it or correct it"})
+    return st.epoch_s, st.r_m, st.v_m_s
 
 
 def read_state(form: str, raw: dict, body, where: str = "state") -> tuple[tuple, tuple]:
@@ -137,7 +186,7 @@ def read_target(kind: str, raw: dict, body):
         raise FormErrors({field_of(str(exc)): str(exc)}) from None
 
 
-def read_record(raw: dict, after_form: str, after_raw: dict, body) -> dict:
+def read_record(raw: dict, after_form: str, after_raw: dict, body, base_dir=None) -> dict:
     """What a burn did, from the record form.
 
     Returns
@@ -151,8 +200,7 @@ def read_record(raw: dict, after_form: str, after_raw: dict, body) -> dict:
     errors = {}
     out = {}
     for key, fn in (("ignition", lambda t: parse_utc(t, "ignition")),
-                    ("duration", lambda t: parse_value(t, "time", "duration", allow_zero=False)),
-                    ("after_epoch", lambda t: parse_utc(t, "post-burn epoch"))):
+                    ("duration", lambda t: parse_value(t, "time", "duration", allow_zero=False))):
         try:
             out[key] = fn(str(raw.get(key, "")).strip())
         except ValueError as exc:
@@ -168,14 +216,14 @@ def read_record(raw: dict, after_form: str, after_raw: dict, body) -> dict:
     if source not in ("gauge", "book-keeping"):
         errors["source"] = f"propellant source: {source!r}: use gauge or book-keeping"
     try:
-        r, v = read_state(after_form, after_raw, body, "after")
+        epoch, r, v = read_timed_state(after_form, after_raw, str(raw.get("after_epoch", "")), body,
+                                       base_dir, "after", "after_epoch")
     except FormErrors as exc:
         errors.update(exc.errors)
-        r = v = None
     if errors:
         raise FormErrors(errors)
     return {"ignition_s": out["ignition"], "duration_s": out["duration"], "propellant_kg": out["propellant"],
-            "propellant_source": source, "after": OrbitState(out["after_epoch"], r, v)}
+            "propellant_source": source, "after": OrbitState(epoch, r, v)}
 
 
 def read_gauge(raw: dict) -> tuple[float, float, str]:
@@ -220,6 +268,8 @@ def state_text(form: str, r_m, v_m_s, body) -> dict:
     """Field text of a state in ``form``, precise to well under a metre."""
     from mechanics.elements import rv_to_elements
 
+    if form == "opm":
+        return {"opm": ""}  # a message is a file: nothing to show of the latest orbit
     r = np.asarray(r_m, dtype=float)
     v = np.asarray(v_m_s, dtype=float)
     if form == "vector":

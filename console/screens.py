@@ -112,10 +112,11 @@ class RecordScreen(_FormDialog):
             self.burn = burn
             self.values = values
 
-    def __init__(self, planned, body) -> None:
+    def __init__(self, planned, body, base_dir=None) -> None:
         super().__init__()
         self.planned = planned
         self.body = body
+        self.base_dir = base_dir  # where a relative OPM file name is taken (the session's folder)
 
     def dialog_title(self) -> str:
         return f"Record burn {self.planned.index}"
@@ -145,7 +146,7 @@ class RecordScreen(_FormDialog):
         form, after_raw, epoch = ed.values()
         raw = dict(form_raw, after_epoch=epoch)
         try:
-            values = read_record(raw, form, after_raw, self.body)
+            values = read_record(raw, form, after_raw, self.body, self.base_dir)
         except FormErrors as exc:
             errors = dict(exc.errors)
             if "after_epoch" in errors:

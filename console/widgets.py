@@ -28,19 +28,20 @@ from .forms import (ALL_TARGET_FIELDS, STATE_FIELDS, STATE_FORMS, TARGET_FIELDS,
 from .timeutil import format_duration, format_utc
 
 #: every state field once, so that each form shows its fields in its own order
-STATE_FIELD_ORDER = ("r", "v", "a", "e", "periapsis_alt", "apoapsis_alt", "i", "raan", "argp", "nu")
+STATE_FIELD_ORDER = ("opm", "r", "v", "a", "e", "periapsis_alt", "apoapsis_alt", "i", "raan", "argp", "nu")
 LEVEL_TEXT = {"ok": "ok", "watch": "WATCH !", "alarm": "ALARM !!"}
 LEVEL_STYLE = {"ok": "green", "watch": "bold yellow", "alarm": "bold red"}
 
 FIELD_LABELS = {
     "epoch": "epoch UTC", "r": "r x y z", "v": "v x y z", "a": "a", "e": "e", "i": "i", "raan": "RAAN",
     "argp": "arg peri", "nu": "true anom", "periapsis_alt": "peri alt", "apoapsis_alt": "apo alt",
-    "altitude": "altitude", "via_alt": "via alt",
+    "altitude": "altitude", "via_alt": "via alt", "opm": "OPM file",
 }
 FIELD_HINTS = {
     "epoch": "2027-03-14T06:00:00Z", "r": "6778 0 0 km", "v": "0 7.67 0 km/s", "a": "6921 km",
     "e": "0.0016", "i": "97.6 deg", "raan": "131 deg", "argp": "48 deg", "nu": "300 deg",
     "periapsis_alt": "380 km", "apoapsis_alt": "402 km", "altitude": "560 km", "via_alt": "900 km",
+    "opm": "od/wren3.opm (EPOCH from the file)",
 }
 
 

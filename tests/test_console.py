@@ -186,6 +186,41 @@ async def test_entering_a_state_in_each_form_records_it_and_replans(tmp_path, fo
         session.close()
 
 
+async def test_a_state_from_an_orbit_parameter_message(tmp_path):
+    # the OPM form: a relative file name is taken beside the session; the message's EPOCH is the
+    # epoch; a filled epoch field that disagrees with it is refused beside the field
+    from console.opm import write_opm
+
+    session = make_session(tmp_path)
+    try:
+        app = console(session)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await settle(pilot)
+            body = app.current_view.scenario.body
+            r, vel = expected_state("apsides", body.mu_m3_s2)
+            t = parse_utc("2027-03-14T06:20:00Z")
+            (session.journal.path.parent / "od").mkdir()
+            (session.journal.path.parent / "od" / "after.opm").write_text(
+                write_opm(epoch_s=t, r_m=r, v_m_s=vel, body=body, object_name="WREN-3"))
+            n0 = session.journal.count()
+            await pick(pilot, app.screen.query_one("#state-editor .form-cycle"), "opm")
+            await type_into(pilot, state_input(app, "opm"), "od/after.opm")
+            await type_into(pilot, state_input(app, "epoch"), "2027-03-14T06:21:00Z")
+            await pilot.press("f2")
+            await pilot.pause()
+            assert session.journal.count() == n0
+            assert "disagrees" in app.screen.query_one("#state-editor #f-epoch").error
+            await type_into(pilot, state_input(app, "epoch"), "")
+            await pilot.press("f2")
+            await settle(pilot)
+            assert session.journal.count() == n0 + 1
+            v = app.current_view
+            assert v.latest.epoch_s == t
+            assert np.allclose(v.latest.r_m, r, atol=1e-3, rtol=0.0)  # the message carries 1 mm
+    finally:
+        session.close()
+
+
 @pytest.mark.parametrize("field,text,needle", [
     ("periapsis_alt", "abc km", "state.periapsis_alt"),
     ("periapsis_alt", "-50 km", "inside the body"),

@@ -659,3 +659,25 @@ def test_session_record_after_an_opm_and_the_remaining_queue_as_opm(tmp_path):
     for m, x in zip(rest.maneuvers, planned):
         assert format_utc(m.ignition_s) == x["ignition"]
         assert -m.delta_mass_kg == pytest.approx(x["propellant_kg"], abs=5e-7)
+
+
+def test_the_console_record_form_reads_the_post_burn_orbit_from_a_message(tmp_path):
+    # console.forms.read_record with the "opm" form: the message's EPOCH is the OD epoch
+    from console.forms import FormErrors, read_record
+    from console.profiles import load_body
+
+    body = load_body("earth")
+    r, v = (7000e3, 10e3, -5e3), (1.0, 7545.0, 12.0)
+    t = 1.8e9
+    (tmp_path / "after.opm").write_text(write_opm(epoch_s=t, r_m=r, v_m_s=v, body=body))
+    raw = {"ignition": "2027-01-15T08:00:00Z", "duration": "300 s", "propellant": "", "source": "gauge",
+           "after_epoch": ""}
+    out = read_record(raw, "opm", {"opm": "after.opm"}, body, tmp_path)
+    assert out["after"].epoch_s == t
+    assert np.allclose(out["after"].r_m, r, atol=1e-3) and np.allclose(out["after"].v_m_s, v, atol=1e-6)
+    with pytest.raises(FormErrors) as exc:
+        read_record(dict(raw, after_epoch="2027-01-15T09:00:00Z"), "opm", {"opm": "after.opm"}, body, tmp_path)
+    assert "after_epoch" in exc.value.errors
+    with pytest.raises(FormErrors) as exc:
+        read_record(raw, "opm", {"opm": "missing.opm"}, body, tmp_path)
+    assert "not found" in exc.value.errors["opm"]
