@@ -185,13 +185,18 @@ def _dop853(rhs, y0, t1: float):
     """End state of Hairer's DOP853 (compiled, via ``scipy.integrate.ode``) from 0 to ``t1``."""
     from scipy.integrate import ode
 
-    with _FORTRAN:
+    import warnings
+
+    with _FORTRAN, warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)  # scipy warns as well as failing: we raise
         solver = ode(rhs).set_integrator("dop853", rtol=RTOL, atol=1e-8, nsteps=1_000_000)
         solver.set_initial_value(y0, 0.0)
         y1 = solver.integrate(t1)
         ok = solver.successful()
-    if not ok:  # pragma: no cover - non-finite states only
-        raise ValueError("flight integration failed")
+    if not ok:
+        raise ValueError("flight integration failed: a million steps were not enough (the "
+                         "trajectory passes very close to the body's centre, e.g. a burn that "
+                         "stops the vehicle's motion)")
     return np.asarray(y1, dtype=float)
 
 

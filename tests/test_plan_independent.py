@@ -7,7 +7,8 @@ path), and checks that the final orbit reaches the target apsides within 1 km, u
 (orbit-averaged) apsides under J2, and that the propellant flown equals the plan's total.
 
 The averaging here is deliberately simpler than the planner's: one osculating period after the
-last cutoff, 256 equally spaced samples, plain means of the osculating a and eccentricity vector.
+last cutoff, 256 equally spaced samples, plain means of the osculating a, eccentricity vector and
+angular-momentum direction (for the inclination of a plane change).
 """
 
 from __future__ import annotations
@@ -60,8 +61,8 @@ def make_rhs(mu, radius, j2, use_j2, thrust=None, mdot=0.0, mode=None, vec=None)
     return rhs
 
 
-def averaged_apsides(y, mu, radius, j2, use_j2):
-    """Mean apsis radii: average osculating a and e-vector over one osculating period."""
+def averaged_apsides(y, mu, radius, j2, use_j2, with_i=False):
+    """Mean apsis radii (and inclination, rad): averages over one osculating period."""
     r, v = y[:3], y[3:6]
     a0 = 1.0 / (2.0 / np.linalg.norm(r) - v @ v / mu)
     period = 2 * math.pi * math.sqrt(a0 ** 3 / mu)
@@ -75,6 +76,10 @@ def averaged_apsides(y, mu, radius, j2, use_j2):
     evec = ((v2 - mu / rn)[:, None] * rs - np.sum(rs * vs, axis=1)[:, None] * vs) / mu
     a_mean = a.mean()
     e_mean = np.linalg.norm(evec.mean(axis=0))
+    if with_i:
+        h = np.cross(rs, vs)
+        h_mean = (h / np.linalg.norm(h, axis=1)[:, None]).mean(axis=0)
+        return a_mean * (1 - e_mean), a_mean * (1 + e_mean), math.acos(h_mean[2] / np.linalg.norm(h_mean))
     return a_mean * (1 - e_mean), a_mean * (1 + e_mean)
 
 
@@ -96,7 +101,10 @@ def fly_plan(doc):
         if att["mode"] == "inertial":
             mode, vec = "inertial", att["direction"]
         else:
-            mode, vec = "tracking", (1.0 if att["sense"] == "prograde" else -1.0, 0.0, 0.0)
+            # (along v, along r x v, along v x h): the full direction when the burn carries a
+            # plane change, else along or against the velocity
+            vec = att.get("tracking_direction") or (1.0 if att["sense"] == "prograde" else -1.0, 0.0, 0.0)
+            mode = "tracking"
         m_before = y[6]
         burn = solve_ivp(make_rhs(mu, radius, j2, use_j2, b["thrust_N"], b["mdot_kg_s"], mode, vec),
                          (0.0, b["duration_s"]), y, method="DOP853", rtol=1e-11, atol=1e-6)
@@ -150,6 +158,18 @@ CASES = [
      'kind = "apoapsis"\naltitude = "1500 km"', "two-body", "inertial"),
     ("smallsat-lower-J2", "wren3", "548 km", "552 km", "51.6 deg", "20 deg",
      'kind = "apsides"\nperiapsis_alt = "470 km"\napoapsis_alt = "552 km"', "two-body+J2", "inertial"),
+    # combined plane changes: from a near-circular orbit (first burn at a node) and from an
+    # elliptical one whose apsides lie on the line of nodes (argp 180 deg)
+    ("smallsat-plane-split-J2", "wren3", "500 km", "502 km", "97.6 deg", "48 deg",
+     'kind = "circular"\naltitude = "560 km"\ni = "97.9 deg"', "two-body+J2", "inertial"),
+    ("medium-plane-apsides-tracking", "medium.toml", "600 km", "600 km", "28.5 deg", "0 deg",
+     'kind = "apsides"\nperiapsis_alt = "700 km"\napoapsis_alt = "1200 km"\ni = "29.5 deg"', "two-body",
+     "tracking"),
+    ("medium-plane-elliptic-J2", "medium.toml", "500 km", "1500 km", "50 deg", "180 deg",
+     'kind = "circular"\naltitude = "1500 km"\ni = "50.5 deg"', "two-body+J2", "inertial"),
+    # geostationary insertion with the 400 N bus: transfer orbit to equatorial and circular
+    ("bus-gto-to-geo-J2-tracking", "heron", "250 km", "35786 km", "7 deg", "180 deg",
+     'kind = "circular"\naltitude = "35786 km"\ni = "0 deg"', "two-body+J2", "tracking"),
 ]
 
 
@@ -170,18 +190,23 @@ def test_flown_queue_reaches_target(tmp_path, case):
     doc, target = run_plan(tmp_path, case)
     assert doc["feasible"] is True
     y, flown_prop, (mu, radius, j2, use_j2) = fly_plan(doc)
-    rp, ra = averaged_apsides(y, mu, radius, j2, use_j2)
+    rp, ra, i_flown = averaged_apsides(y, mu, radius, j2, use_j2, with_i=True)
+    lines = dict(line.split(" = ") for line in target.splitlines())
+    if "i" in lines:  # the plane change: out-of-plane miss r * di within 1 km, like the apsides
+        want_i = math.radians(float(lines["i"].strip('"').split()[0]))
+        assert abs(i_flown - want_i) * ra < 1000.0, math.degrees(i_flown)
+    else:  # no plane change asked: the plane is kept (J2 mean against osculating start: 0.05 deg)
+        assert abs(math.degrees(i_flown) - float(case[4].split()[0])) < 0.05
     hp_km, ha_km = (rp - radius) / 1e3, (ra - radius) / 1e3
     if 'kind = "circular"' in target:
-        want = float(target.split('"')[-2].split()[0])
+        want = float(lines["altitude"].strip('"').split()[0])
         assert abs(hp_km - want) < 1.0 and abs(ha_km - want) < 1.0, (hp_km, ha_km)
     elif 'kind = "apsides"' in target:
-        lines = dict(line.split(" = ") for line in target.splitlines())
         want_p = float(lines["periapsis_alt"].strip('"').split()[0])
         want_a = float(lines["apoapsis_alt"].strip('"').split()[0])
         assert abs(hp_km - want_p) < 1.0 and abs(ha_km - want_a) < 1.0, (hp_km, ha_km)
     else:  # apoapsis only
-        want = float(target.split('"')[-2].split()[0])
+        want = float(lines["altitude"].strip('"').split()[0])
         assert abs(ha_km - want) < 1.0, ha_km
     # propellant flown by the reference integration equals the plan's total (mass flow x time)
     assert flown_prop == pytest.approx(doc["totals"]["propellant_kg"], abs=1e-6)
