@@ -11,6 +11,8 @@ and a name that is a link is refused, so nothing outside the folder is ever over
 
 from __future__ import annotations
 
+import math
+
 import csv
 import io
 from pathlib import Path
@@ -39,6 +41,8 @@ PLANNED_COLUMNS = (
     ("mdot_kg_s", lambda b, R: f"{b.mdot_kg_s:.9f}"),
     ("after_periapsis_alt_km", lambda b, R: _km(b.after_periapsis_radius_m - R)),
     ("after_apoapsis_alt_km", lambda b, R: _km(b.after_apoapsis_radius_m - R)),
+    ("after_i_deg", lambda b, R: f"{math.degrees(b.after_i_rad):.6f}"
+     if math.isfinite(getattr(b, "after_i_rad", float("nan"))) else ""),
 )
 
 #: (header, cell(actual)) for a recorded burn (the session's ``actual`` dict; empty when none).
@@ -51,13 +55,16 @@ ACTUAL_COLUMNS = (
 )
 
 #: (header, cell(burn)) for the pointing: mode, sense, and for an inertially fixed burn its unit
-#: direction in the inertial frame (empty for a burn that tracks the velocity).
+#: direction in the inertial frame (empty for a burn that tracks the velocity); for a burn that
+#: carries a plane change, its angle out of the orbit plane (empty otherwise).
 ATTITUDE_COLUMNS = (
     ("attitude", lambda b: b.attitude_mode),
     ("sense", lambda b: "prograde" if b.sense > 0 else "retrograde"),
     ("direction_x", lambda b: f"{b.direction[0]:.12f}" if b.attitude_mode == "inertial" else ""),
     ("direction_y", lambda b: f"{b.direction[1]:.12f}" if b.attitude_mode == "inertial" else ""),
     ("direction_z", lambda b: f"{b.direction[2]:.12f}" if b.attitude_mode == "inertial" else ""),
+    ("out_of_plane_deg",
+     lambda b: f"{math.degrees(b.out_of_plane_rad):.6f}" if getattr(b, "goal_i_rad", None) is not None else ""),
 )
 
 

@@ -111,8 +111,25 @@ CAUTIONS = (
 
 def _attitude(b) -> dict:
     if b.attitude_mode == "inertial":
-        return {"mode": "inertial", "direction": [round(c, 12) for c in b.direction]}
-    return {"mode": "tracking", "sense": "prograde" if b.sense > 0 else "retrograde"}
+        out = {"mode": "inertial", "direction": [round(c, 12) for c in b.direction]}
+    else:
+        out = {"mode": "tracking", "sense": "prograde" if b.sense > 0 else "retrograde"}
+    if getattr(b, "goal_i_rad", None) is not None:  # a burn that carries a plane change
+        out["out_of_plane_deg"] = math.degrees(b.out_of_plane_rad)
+        if b.attitude_mode == "tracking":
+            out["tracking_direction"] = [round(c, 12) for c in b.direction]
+    return out
+
+
+def _apsides(rp_m: float, ra_m: float, i_rad: float, radius_m: float) -> dict:
+    out = {"periapsis_alt_km": (rp_m - radius_m) / 1e3, "apoapsis_alt_km": (ra_m - radius_m) / 1e3}
+    if math.isfinite(i_rad):
+        out["i_deg"] = math.degrees(i_rad)
+    return out
+
+
+def _i_note(d: dict) -> str:
+    return f", i {d['i_deg']:.4f} deg" if "i_deg" in d else ""
 
 
 def burn_json(b, radius_m: float) -> dict:
@@ -139,12 +156,11 @@ def burn_json(b, radius_m: float) -> dict:
             "rule": "half-dv",
             "ignition_half_duration": format_utc(b.ignition_half_duration_s),
             "half_dv_earlier_by_s": b.ignition_half_duration_s - b.ignition_s,
+            "centre_shift_s": getattr(b, "centre_shift_s", 0.0),
         },
         "goal_alt_km": (b.goal_radius_m - radius_m) / 1e3,
-        "after": {
-            "periapsis_alt_km": (b.after_periapsis_radius_m - radius_m) / 1e3,
-            "apoapsis_alt_km": (b.after_apoapsis_radius_m - radius_m) / 1e3,
-        },
+        "after": _apsides(b.after_periapsis_radius_m, b.after_apoapsis_radius_m,
+                          getattr(b, "after_i_rad", float("nan")), radius_m),
     }
 
 
@@ -168,10 +184,7 @@ def plan_json(plan, scenario=None) -> dict:
             "propellant_kg": plan.total_propellant_kg,
             "duration_s": plan.total_duration_s,
         },
-        "final": {
-            "periapsis_alt_km": (plan.final_periapsis_radius_m - R) / 1e3,
-            "apoapsis_alt_km": (plan.final_apoapsis_radius_m - R) / 1e3,
-        },
+        "final": _apsides(plan.final_periapsis_radius_m, plan.final_apoapsis_radius_m, plan.final_i_rad, R),
         "propellant": {
             "loaded_kg": plan.loaded_kg,
             "usable_kg": plan.usable_kg,
@@ -215,19 +228,27 @@ def plan_text(plan, scenario=None) -> str:
         out.append(f"{b['index']:>3}  {b['apsis']:<9} {b['ignition']:<24} {b['duration_s']:>8.1f} "
                    f"{b['dv_mps']:>9.3f} {b['finite_loss_mps']:>6.3f} {b['propellant_kg']:>8.3f} "
                    f"{b['mass_before_kg']:>9.3f}  {b['after']['periapsis_alt_km']:.3f} x "
-                   f"{b['after']['apoapsis_alt_km']:.3f}")
+                   f"{b['after']['apoapsis_alt_km']:.3f}"
+                   + (f", i {b['after']['i_deg']:.4f}, {b['attitude']['out_of_plane_deg']:+.2f} deg out of plane"
+                      if "out_of_plane_deg" in b["attitude"] else ""))
     t = d["totals"]
     out.append("-" * len(head))
     out.append(f"totals: {len(d['burns'])} burns, dv {t['dv_mps']:.3f} m/s (impulsive "
                f"{t['impulsive_dv_mps']:.3f}, finite loss {t['finite_loss_mps']:.3f}), propellant "
                f"{t['propellant_kg']:.3f} kg, burning {t['duration_s']:.0f} s")
     f = d["final"]
-    out.append(f"final {kind} orbit: {f['periapsis_alt_km']:.3f} x {f['apoapsis_alt_km']:.3f} km")
+    target_i = "" if plan.target_i_rad is None else f" (target i {math.degrees(plan.target_i_rad):.4f} deg)"
+    out.append(f"final {kind} orbit: {f['periapsis_alt_km']:.3f} x {f['apoapsis_alt_km']:.3f} km{_i_note(f)}"
+               + target_i)
     p = d["propellant"]
     out.append(f"propellant: loaded {p['loaded_kg']:.3f} kg, usable {p['usable_kg']:.3f}, after plan "
                f"{p['after_plan_kg']:.3f}, reserve {p['reserve_kg']:.3f}, margin {p['margin_kg']:.3f} kg "
                f"(buys {p['dv_remaining_mps']:.1f} m/s)")
     out.append("times: ignition puts half of each burn's delta-v before the apsis (half-dv rule)")
+    for b in d["burns"]:
+        if b["centring"].get("centre_shift_s"):
+            out.append(f"note: burn {b['index']} is centred {b['centring']['centre_shift_s']:+.1f} s from its "
+                       f"{b['apsis']} passage (centre time solved together with the burn)")
     for w in d["warnings"]:
         out.append(f"WARNING: {w}")
     for c in d["cautions"]:
@@ -289,10 +310,8 @@ def session_json(session, v) -> dict:
         "burns": burns,
         "totals": {"dv_mps": tot_dv, "impulsive_dv_mps": tot_imp, "finite_loss_mps": tot_dv - tot_imp,
                    "propellant_kg": tot_prop, "duration_s": tot_dur},
-        "final": None if plan is None else {
-            "periapsis_alt_km": (plan.final_periapsis_radius_m - R) / 1e3,
-            "apoapsis_alt_km": (plan.final_apoapsis_radius_m - R) / 1e3,
-        },
+        "final": None if plan is None else _apsides(plan.final_periapsis_radius_m, plan.final_apoapsis_radius_m,
+                                                    plan.final_i_rad, R),
         "calibration": {"thrust_factor": v.calibration.thrust_factor,
                         "burns_used": v.calibration.burns_used,
                         "spread": v.calibration.spread,
@@ -355,7 +374,8 @@ def session_text(session, v) -> str:
                    f"{b['after']['apoapsis_alt_km']:.3f}")
     out.append("-" * len(head))
     if d["final"]:
-        out.append(f"final {kind} orbit: {d['final']['periapsis_alt_km']:.3f} x {d['final']['apoapsis_alt_km']:.3f} km")
+        out.append(f"final {kind} orbit: {d['final']['periapsis_alt_km']:.3f} x {d['final']['apoapsis_alt_km']:.3f} km"
+                   + _i_note(d["final"]))
     if d["plan_error"]:
         out.append(f"PLAN ERROR: {d['plan_error']}")
     p = d["propellant"]

@@ -172,7 +172,9 @@ def _summary(ev) -> str:
     if isinstance(ev, EntryRetracted):
         return f"retracts entry {ev.entry}" + (f": {ev.reason}" if ev.reason else "")
     if isinstance(ev, TargetSet):
-        return f"target {ev.target.get('kind')}"
+        t = ev.target
+        i = t.get("i_rad")
+        return f"target {t.get('kind')}" + ("" if i is None else f", i {math.degrees(i):.4f} deg")
     if isinstance(ev, VehicleChanged):
         return f"vehicle {ev.vehicle.get('name')}"
     return ev.KIND

@@ -19,7 +19,7 @@ from campaign_files import write_campaign  # noqa: E402  (tests/ helper)
 EXE = str(Path(sys.executable).parent / "burndesk")
 
 #: every numeric column carries its unit in its name (or is a plain ratio / unit vector)
-UNIT_SUFFIXES = ("_s", "_kg", "_m_s", "_N", "_kg_s", "_km", "_utc")
+UNIT_SUFFIXES = ("_s", "_kg", "_m_s", "_N", "_kg_s", "_km", "_utc", "_deg")
 NO_UNIT = {"burn", "status", "apsis", "attitude", "sense", "direction_x", "direction_y", "direction_z"}
 
 
