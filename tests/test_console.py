@@ -303,6 +303,40 @@ async def test_setting_a_target_replans_to_it(tmp_path):
         session.close()
 
 
+async def test_a_target_inclination_plans_a_plane_change(tmp_path):
+    import math
+
+    from console.widgets import burn_details
+
+    session = make_session(tmp_path)
+    try:
+        app = console(session)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await settle(pilot)
+            await type_into(pilot, app.screen.query_one("#target-editor #in-i"), "97.8 deg")
+            await pilot.press("f3")
+            await settle(pilot)
+            ev = events(session)[-1]
+            assert isinstance(ev, TargetSet) and ev.target["i_rad"] == pytest.approx(math.radians(97.8))
+            v = app.current_view
+            assert abs(v.plan.final_i_rad - math.radians(97.8)) * v.plan.final_apoapsis_radius_m < 100.0
+            assert all(r.planned.goal_i_rad is not None for r in v.rows)
+            details = burn_details(v.rows[0], v)
+            from rich.console import Console
+
+            out = Console(width=100, record=True)
+            out.print(details)
+            assert "out of the orbit plane" in out.export_text()
+            # an inclination outside 0..180 deg is refused beside the field, nothing written
+            n = session.journal.count()
+            await type_into(pilot, app.screen.query_one("#target-editor #in-i"), "200 deg")
+            await pilot.press("f3")
+            await pilot.pause()
+            assert session.journal.count() == n
+    finally:
+        session.close()
+
+
 # --------------------------------------------------------------------------- the queue
 
 async def test_queue_matches_the_planner_for_the_same_scenario(tmp_path):

@@ -150,3 +150,40 @@ def test_session_show_json_matches_its_schema(tmp_path):
     bad = copy.deepcopy(doc)
     next(x for x in bad["burns"] if x["status"] == "done")["drift"]["level"] = "panic"
     assert errors(SESSION_SCHEMA, bad)
+
+
+@pytest.mark.parametrize("attitude", ["inertial", "tracking"])
+def test_a_plane_change_plan_matches_the_schemas(tmp_path, attitude):
+    # the plane-change fields (out_of_plane_deg, tracking_direction, i_deg, centre_shift_s) are
+    # documented: plan --json and session show --json of a transfer to a geostationary orbit
+    scen = tmp_path / "geo.toml"
+    scen.write_text(f"""
+name = "schema plane"
+body = "earth"
+vehicle = "heron"
+epoch = "2027-06-10T00:00:00Z"
+[state]
+periapsis_alt = "250 km"
+apoapsis_alt = "35786 km"
+i = "7 deg"
+raan = "60 deg"
+argp = "180 deg"
+nu = "20 deg"
+[target]
+kind = "circular"
+altitude = "35786 km"
+i = "0 deg"
+[options]
+attitude = "{attitude}"
+""")
+    doc = json.loads(run("plan", scen, "--json").stdout)
+    assert errors(PLAN_SCHEMA, doc) == []
+    last = doc["burns"][-1]
+    assert "out_of_plane_deg" in last["attitude"] and "i_deg" in last["after"]
+    assert ("tracking_direction" in last["attitude"]) is (attitude == "tracking")
+    assert abs(doc["final"]["i_deg"]) < 1e-3
+    sess = tmp_path / "geo.burn"
+    run("session", "init", sess, "--scenario", scen)
+    assert errors(SESSION_SCHEMA, json.loads(run("session", "show", sess, "--json").stdout)) == []
+    text = run("plan", scen).stdout
+    assert "deg out of plane" in text and "target i 0.0000 deg" in text
