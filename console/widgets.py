@@ -638,6 +638,9 @@ def burn_details(row, v):
         g.add_row("", f"RA {ra:.2f} deg, Dec {dec:+.2f} deg")
     else:
         g.add_row("attitude", f"tracking, {'prograde' if b.sense > 0 else 'retrograde'}")
+        if getattr(b, "goal_i_rad", None) is not None:
+            t, h, n = b.direction
+            g.add_row("", f"(v, r x v, v x h) components ({t:+.4f}, {h:+.4f}, {n:+.4f})")
     if getattr(b, "goal_i_rad", None) is not None:
         g.add_row("plane", f"{math.degrees(b.out_of_plane_rad):+.2f} deg out of the orbit plane (toward "
                            f"r x v); inclination to {math.degrees(b.goal_i_rad):.4f} deg")
