@@ -1,7 +1,7 @@
 """Body profiles against published constants and a general-purpose reference library.
 
-Sources: NIMA TR8350.2 3rd ed. (WGS-84 and the EGM96 C20bar, confirmed, DOMAIN.md); JPL DE440
-lunar and Mars-system GM (confirmed second-hand, DOMAIN.md); astropy.constants (IAU 2015
+Sources: NIMA TR8350.2 3rd ed. (WGS-84 and the EGM96 C20bar, confirmed); JPL DE440
+lunar and Mars-system GM (confirmed second-hand); astropy.constants (IAU 2015
 nominal values, which are *not* WGS-84).
 """
 
@@ -45,7 +45,7 @@ def test_earth_against_astropy(earth):
 
 
 def test_moon_gm_is_de440():
-    # JPL DE440 lunar GM 4902.800118 km^3/s^2 (confirmed second-hand, DOMAIN.md).
+    # JPL DE440 lunar GM 4902.800118 km^3/s^2 (confirmed second-hand).
     moon = load_body("moon")
     assert moon.mu_m3_s2 == pytest.approx(4902.800118 * KM3_S2, rel=1e-12)
     # mean radius 1737.151 km, Wieczorek (2015), Treatise on Geophysics 10.5 (from memory)
@@ -55,7 +55,7 @@ def test_moon_gm_is_de440():
 
 def test_mars_gm_close_to_de440_system():
     # The profile carries the Mars *body* GM (its named source: JPL Horizons); DE440 gives the
-    # Mars *system* GM 42828.375816 km^3/s^2 (confirmed second-hand, DOMAIN.md), which also
+    # Mars *system* GM 42828.375816 km^3/s^2 (confirmed second-hand), which also
     # holds Phobos and Deimos.  Those differ by a few parts in 1e8, so 1e-7 relative checks the
     # transcription (units, digits), not which of the two it is.
     mars = load_body("mars")

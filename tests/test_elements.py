@@ -43,7 +43,7 @@ VALLADO_2_5_V_M_S = np.array([4.901327, 5.533756, -1.976341]) * KM
 
 def test_vallado_ex_2_5_rv_to_elements():
     # Vallado, Fundamentals of Astrodynamics and Applications, 4th ed., Ex. 2-5 (values
-    # confirmed in a stored copy, see DOMAIN.md).  The printed p, a and i differ from a
+    # confirmed in a stored copy).  The printed p, a and i differ from a
     # full-precision evaluation of the same state by up to 8 m (p), 5 m (a) and 0.0009 deg (i);
     # the inclination is cross-checked below from the angular momentum computed here, so the
     # tolerances on those three are a few units of the printed last digit, not half a unit.
@@ -116,7 +116,7 @@ def test_vallado_ex_2_5_full_precision_round_trip():
 
 def test_curtis_ex_4_3():
     # Curtis, Orbital Mechanics for Engineering Students, Ex. 4.3 (mu = 398600 km^3/s^2):
-    # e, i, a confirmed in a stored copy (DOMAIN.md); h, RAAN, argp, theta from memory.
+    # e, i, a confirmed in a stored copy; h, RAAN, argp, theta from memory.
     # Tolerances are half a unit in the printed last digit.
     r = np.array([-6045.0, -3490.0, 2500.0]) * KM
     v = np.array([-3.457, 6.618, 2.533]) * KM

@@ -1,7 +1,7 @@
 """Impulsive manoeuvres: Hohmann, bi-elliptic, apsis burns, plane changes.
 
 References: Vallado, Fundamentals of Astrodynamics and Applications (4th ed.), Ex. 6-1, Ex. 6-2
-and sec. 6.3 (values in DOMAIN.md); burndesk's Kepler propagation for end-to-end checks.
+and sec. 6.3; burndesk's Kepler propagation for end-to-end checks.
 """
 
 import math
@@ -41,7 +41,7 @@ R_EARTH_M = 6378.137e3  # Vallado's Earth radius (= WGS-84 a)
 # ---------------------------------------------------------------------------------------------
 
 def test_vallado_ex_6_1_hohmann():
-    # Vallado, Ex. 6-1 (recomputed, DOMAIN.md): 191.34411 km -> 35781.34857 km altitude,
+    # Vallado, Ex. 6-1 (recomputed): 191.34411 km -> 35781.34857 km altitude,
     # 2.457038 + 1.478187 = 3.935224 km/s in 5.256713 h.  Tolerance: half a unit of the
     # printed last digit (0.5 mm/s, 0.5e-6 h), 1 mm/s on the total (sum of two roundings).
     h = hohmann(R_EARTH_M + 191.34411 * KM, R_EARTH_M + 35781.34857 * KM, MU)
@@ -53,7 +53,7 @@ def test_vallado_ex_6_1_hohmann():
 
 
 def test_vallado_ex_6_2_bielliptic():
-    # Vallado, Ex. 6-2 (recomputed, DOMAIN.md): 191.34411 km via 503873 km to 376310 km
+    # Vallado, Ex. 6-2 (recomputed): 191.34411 km via 503873 km to 376310 km
     # altitude: bi-elliptic total 3.904057 km/s against Hohmann 3.966193 km/s.
     # Time of flight 593.92 h from memory.
     r1, rb, r2 = (R_EARTH_M + x * KM for x in (191.34411, 503873.0, 376310.0))
@@ -65,7 +65,7 @@ def test_vallado_ex_6_2_bielliptic():
 
 
 def test_crossover_ratios():
-    # Vallado, sec. 6.3 (confirmed, DOMAIN.md): 11.938765 and 15.581719.
+    # Vallado, sec. 6.3 (confirmed): 11.938765 and 15.581719.
     lower, upper = bielliptic_crossover_ratios()
     assert lower == pytest.approx(11.938765, abs=1e-6)
     assert upper == pytest.approx(15.581719, abs=1e-6)

@@ -52,7 +52,7 @@ def angle_diff(a, b):
 # ---------------------------------------------------------------------------------------------
 
 def test_vallado_ex_2_1_kepler_equation():
-    # Vallado, Ex. 2-1 (confirmed, DOMAIN.md): M = 235.4 deg, e = 0.4 -> E = 220.512074767 deg.
+    # Vallado, Ex. 2-1 (confirmed): M = 235.4 deg, e = 0.4 -> E = 220.512074767 deg.
     # The printed value is cut at 1e-9 deg; the full-precision root (residual below 1e-15 rad)
     # lies 5.2e-10 deg above it, so the tolerance is one unit of the last printed digit.
     M = 235.4 * DEG
@@ -63,7 +63,7 @@ def test_vallado_ex_2_1_kepler_equation():
 
 
 def test_vallado_ex_2_4_propagation():
-    # Vallado, Ex. 2-4 (confirmed, DOMAIN.md), mu = 398600.4418 km^3/s^2, 40 min.
+    # Vallado, Ex. 2-4 (confirmed), mu = 398600.4418 km^3/s^2, 40 min.
     # Tolerance: half a unit of the printed last digit (0.1 m -> 0.05 m; 1 mm/s -> 0.5 mm/s).
     assert MU == 398600.4418e9
     r0 = np.array([1131.340, -2282.343, 6672.423]) * KM

@@ -36,7 +36,7 @@ def vehicle(thrust_n, isp_s=300.0, dry=1000.0, prop=4000.0, **kw):
 
 
 def test_vallado_6_1_impulsive_figures_with_a_strong_engine():
-    # Vallado (2013) Ex. 6-1 (from memory; recomputed in DOMAIN.md): 191.34411 km -> 35781.34857 km,
+    # Vallado (2013) Ex. 6-1 (from memory; recomputed): 191.34411 km -> 35781.34857 km,
     # dv_a = 2.457038 km/s, dv_b = 1.478187 km/s, time of flight 5.256713 h.
     target = Target("circular", R + 35781.34857e3, R + 35781.34857e3)
     p = plan_campaign(scenario(191.34411, 191.34411, target, vehicle(5e6), i_deg=0.0))
