@@ -186,7 +186,7 @@ def station_like():
 
 
 def test_osculating_a_swings_by_kilometres_under_j2():
-    # Field notes (common practice): the osculating a of a low orbit swings by ~10 km per
+    # Common practice (rule of thumb): the osculating a of a low orbit swings by ~10 km per
     # revolution under J2; flown here, 11.5 km peak to peak at 700 km, 51.6 deg.
     el = Elements(EARTH.radius_m + 700e3, 0.001, 51.6 * DEG, 0.7, 1.0, 0.3)
     r, v = elements_to_rv(el, MU)
