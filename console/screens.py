@@ -25,6 +25,9 @@ from .widgets import Cycle, Field, FormBase, StateEditor
 class _Dialog(ModalScreen):
     """A modal with a titled dialog box and its own footer (its keys plus the app's)."""
 
+    # a modal screen hides the app's bindings: help and quit are offered here again
+    BINDINGS = [Binding("f1", "app.help", "Help", key_display="F1"),
+                Binding("ctrl+q", "app.quit", "Quit", key_display="^Q")]
     DEFAULT_CLASSES = "dialog-screen"
     TITLE_TEXT = ""
 
@@ -67,7 +70,8 @@ class _FormDialog(_Dialog):
 class HelpScreen(_Dialog):
     """Every key of the console, and the cautions."""
 
-    BINDINGS = [Binding("escape,f1", "cancel", "Close", key_display="Esc")]
+    BINDINGS = [Binding("escape", "cancel", "Close", key_display="Esc"),
+                Binding("f1", "cancel", "Close", show=False)]
     TITLE_TEXT = "Help"
 
     def __init__(self, keys: list[tuple[str, str]]) -> None:

@@ -779,3 +779,35 @@ def test_default_folder_follows_xdg_and_burndesk_home(tmp_path, monkeypatch):
     assert data_dir() == tmp_path / "xdg" / "burndesk"
     monkeypatch.setenv("BURNDESK_HOME", str(tmp_path / "bd"))
     assert data_dir() == tmp_path / "bd"
+
+
+async def test_help_and_quit_reach_through_a_dialog(tmp_path):
+    # a modal dialog hides the app's keys; F1 and Ctrl+Q are offered again by every dialog
+    from console.screens import GaugeScreen, HelpScreen, RecordScreen
+
+    session = make_session(tmp_path)
+    try:
+        app = console(session)
+        async with app.run_test(size=(100, 30)) as pilot:
+            await settle(pilot)
+            for opener, kind in (("f4", RecordScreen), ("f5", GaugeScreen)):
+                await pilot.press(opener)
+                await pilot.pause()
+                assert isinstance(app.screen, kind)
+                await pilot.press("f1")
+                await pilot.pause()
+                assert isinstance(app.screen, HelpScreen)
+                await pilot.press("escape")
+                await pilot.pause()
+                assert isinstance(app.screen, kind)      # back in the dialog
+                await pilot.press("escape")
+                await pilot.pause()
+            await pilot.press("f4")
+            await pilot.pause()
+            n = session.journal.count()
+            await pilot.press("ctrl+q")
+            await pilot.pause()
+            assert app.return_code is not None           # quit from the dialog, nothing written
+            assert session.journal.count() == n
+    finally:
+        session.close()
