@@ -243,3 +243,21 @@ def test_geostationary_insertion_with_a_400_n_engine(model):
     assert last.duration_s > 3000.0                          # a long burn: about 40 deg of arc
     assert abs(last.centre_direction[2]) < 1e-6              # centred on the equator crossing
     assert not [w for w in p.warnings if "miss" in w]
+
+
+def test_the_station_entry_example_scenario():
+    # profiles/scenarios/station_entry.toml (our own example), through the command line
+    import json
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    exe = str(Path(sys.executable).parent / "burndesk")
+    proc = subprocess.run([exe, "plan", str(root / "profiles" / "scenarios" / "station_entry.toml"), "--json"],
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    doc = json.loads(proc.stdout)
+    assert doc["feasible"] and not [w for w in doc["warnings"] if "miss" in w]
+    assert abs(doc["final"]["periapsis_alt_km"] - 35786.0) < 0.1 and abs(doc["final"]["apoapsis_alt_km"] - 35786.0) < 0.1
+    assert abs(doc["final"]["i_deg"]) < 1e-3
