@@ -42,7 +42,7 @@ PLANNED_COLUMNS = (
     ("after_periapsis_alt_km", lambda b, R: _km(b.after_periapsis_radius_m - R)),
     ("after_apoapsis_alt_km", lambda b, R: _km(b.after_apoapsis_radius_m - R)),
     ("after_i_deg", lambda b, R: f"{math.degrees(b.after_i_rad):.6f}"
-     if math.isfinite(getattr(b, "after_i_rad", float("nan"))) else ""),
+     if math.isfinite(b.after_i_rad) else ""),
 )
 
 #: (header, cell(actual)) for a recorded burn (the session's ``actual`` dict; empty when none).
@@ -64,7 +64,7 @@ ATTITUDE_COLUMNS = (
     ("direction_y", lambda b: f"{b.direction[1]:.12f}" if b.attitude_mode == "inertial" else ""),
     ("direction_z", lambda b: f"{b.direction[2]:.12f}" if b.attitude_mode == "inertial" else ""),
     ("out_of_plane_deg",
-     lambda b: f"{math.degrees(b.out_of_plane_rad):.6f}" if getattr(b, "goal_i_rad", None) is not None else ""),
+     lambda b: f"{math.degrees(b.out_of_plane_rad):.6f}" if b.carries_plane_change else ""),
 )
 
 

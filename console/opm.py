@@ -899,9 +899,9 @@ def write_opm(*, epoch_s: float, r_m, v_m_s, body, mass_kg: float | None = None,
             man_frame = "TNW"
             dv = tuple(b.dv_m_s * c for c in _tnw_from_tracking(b.direction))
             how = "attitude tracking the velocity (" + ("prograde" if b.sense > 0 else "retrograde") + ")"
-        if getattr(b, "goal_i_rad", None) is not None:
+        if b.carries_plane_change:
             how += f", {math.degrees(b.out_of_plane_rad):+.3f} deg out of the orbit plane (plane change)"
-        if getattr(b, "centre_shift_s", 0.0):
+        if b.centre_shift_s:
             how += f"; burn centre {b.centre_shift_s:+.3f} s from that passage"
         comment(f"burn {b.index} ({k} of {len(burns)}): centred on {b.apsis} at {_time(b.apsis_time_s)} UTC, "
                 f"{how}")

@@ -114,7 +114,7 @@ def _attitude(b) -> dict:
         out = {"mode": "inertial", "direction": [round(c, 12) for c in b.direction]}
     else:
         out = {"mode": "tracking", "sense": "prograde" if b.sense > 0 else "retrograde"}
-    if getattr(b, "goal_i_rad", None) is not None:  # a burn that carries a plane change
+    if b.carries_plane_change:
         out["out_of_plane_deg"] = math.degrees(b.out_of_plane_rad)
         if b.attitude_mode == "tracking":
             out["tracking_direction"] = [round(c, 12) for c in b.direction]
@@ -156,11 +156,11 @@ def burn_json(b, radius_m: float) -> dict:
             "rule": "half-dv",
             "ignition_half_duration": format_utc(b.ignition_half_duration_s),
             "half_dv_earlier_by_s": b.ignition_half_duration_s - b.ignition_s,
-            "centre_shift_s": getattr(b, "centre_shift_s", 0.0),
+            "centre_shift_s": b.centre_shift_s,
         },
         "goal_alt_km": (b.goal_radius_m - radius_m) / 1e3,
         "after": _apsides(b.after_periapsis_radius_m, b.after_apoapsis_radius_m,
-                          getattr(b, "after_i_rad", float("nan")), radius_m),
+                          b.after_i_rad, radius_m),
     }
 
 

@@ -575,7 +575,7 @@ def queue_summary(v) -> Text:
         kind = "mean" if v.scenario.model == "two-body+J2" else "osc."
         t.append(f" · final {kind} {(v.plan.final_periapsis_radius_m - R) / 1e3:.1f} x "
                  f"{(v.plan.final_apoapsis_radius_m - R) / 1e3:.1f} km")
-        if getattr(v.plan, "target_i_rad", None) is not None:
+        if v.plan.target_i_rad is not None:
             t.append(f", i {math.degrees(v.plan.final_i_rad):.3f} deg")
     else:
         t.append("no target or vehicle: nothing to plan", style="dim")
@@ -638,24 +638,24 @@ def burn_details(row, v):
         g.add_row("", f"RA {ra:.2f} deg, Dec {dec:+.2f} deg")
     else:
         g.add_row("attitude", f"tracking, {'prograde' if b.sense > 0 else 'retrograde'}")
-        if getattr(b, "goal_i_rad", None) is not None:
+        if b.carries_plane_change:
             t, h, n = b.direction
             g.add_row("", f"(v, r x v, v x h) components ({t:+.4f}, {h:+.4f}, {n:+.4f})")
-    if getattr(b, "goal_i_rad", None) is not None:
+    if b.carries_plane_change:
         g.add_row("plane", f"{math.degrees(b.out_of_plane_rad):+.2f} deg out of the orbit plane (toward "
                            f"r x v); inclination to {math.degrees(b.goal_i_rad):.4f} deg")
     later = b.ignition_half_duration_s - b.ignition_s
     g.add_row("centring", f"half-dv rule; the half-duration rule would ignite {later:+.3f} s later "
                           f"({format_utc(b.ignition_half_duration_s)})")
-    shift = getattr(b, "centre_shift_s", 0.0)
+    shift = b.centre_shift_s
     if shift:
         g.add_row("", f"centre {shift:+.1f} s from the {b.apsis} passage (centre time solved together with the burn)")
     kind = "mean" if v.scenario.model == "two-body+J2" else "osculating"
-    after_i = getattr(b, "after_i_rad", float("nan"))
+    after_i = b.after_i_rad
     g.add_row("after", f"{(b.after_periapsis_radius_m - R) / 1e3:.3f} x "
                        f"{(b.after_apoapsis_radius_m - R) / 1e3:.3f} km"
                        + (f", i {math.degrees(after_i):.4f} deg"
-                          if math.isfinite(after_i) and getattr(b, "goal_i_rad", None) is not None else "")
+                          if math.isfinite(after_i) and b.carries_plane_change else "")
                        + f" ({kind})")
     a = row.actual
     if a:

@@ -162,6 +162,10 @@ class PlannedBurn:
     def finite_loss_m_s(self) -> float:
         return self.dv_m_s - self.impulsive_dv_m_s
 
+    @property
+    def carries_plane_change(self) -> bool:
+        return self.goal_i_rad is not None
+
 
 @dataclass(frozen=True)
 class Plan:
@@ -361,8 +365,9 @@ def share_plane_change(legs, rp_m: float, ra_m: float, circular: bool, i0_rad: f
     return out
 
 
-def plane_change_design_dv(legs, rp_m: float, ra_m: float, mu_m3_s2: float) -> float:
-    """Total impulsive delta-v (m/s) of legs that may carry a plane change."""
+def design_dv(legs, rp_m: float, ra_m: float, mu_m3_s2: float) -> float:
+    """Total impulsive delta-v (m/s) of the legs from mean apsides (rp, ra), plane changes included
+    (a leg without one costs |v2 - v1|, its apsis burn)."""
     from .impulsive import plane_change_dv
 
     total = 0.0
@@ -591,7 +596,6 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     if mean0.periapsis_radius_m <= body.radius_m:
         raise ValueError("orbit intersects the body: periapsis is below the surface")
     circular = mean0.e < CIRCULAR_START_E
-    legs = design_legs(mean0.periapsis_radius_m, mean0.apoapsis_radius_m, circular, target, body.mu_m3_s2)
     plane = (target.i_rad is not None
              and abs(target.i_rad - mean0.i_rad) * mean0.a_m > TARGET_TOLERANCE_M)
     if plane:
@@ -606,36 +610,35 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
                 # near-circular (e.g. the mean eccentricity J2 leaves on a "circular" LEO):
                 # start at a node as from a circular orbit; the apsides hardly matter there
                 circular = True
-                legs = design_legs(mean0.periapsis_radius_m, mean0.apoapsis_radius_m, circular, target,
-                                   body.mu_m3_s2)
             elif off > NODE_OFFSET_LIMIT_RAD:
                 raise ValueError(
                     f"target.i: a plane change is made at the nodes, but the apsides of the current "
                     f"orbit lie {math.degrees(off):.1f} deg from its line of nodes (at most "
                     f"{math.degrees(NODE_OFFSET_LIMIT_RAD):.0f} deg): plan it from a near-circular orbit "
                     "or when the apsides line up with the nodes")
-        legs = share_plane_change(legs, mean0.periapsis_radius_m, mean0.apoapsis_radius_m, circular,
-                                  mean0.i_rad, target.i_rad, body.mu_m3_s2)
+    rp0, ra0, mu = mean0.periapsis_radius_m, mean0.apoapsis_radius_m, body.mu_m3_s2
+
+    def design(keep_all=False):
+        legs = design_legs(rp0, ra0, circular, target, mu, keep_all=keep_all)
+        return share_plane_change(legs, rp0, ra0, circular, mean0.i_rad, target.i_rad, mu) if plane else legs
+
     earliest = sc.epoch_s + sc.options.lead_time_s if earliest_s is None else earliest_s
+    node_plan = plane and circular and math.sin(mean0.i_rad) >= EQUATORIAL_I_RAD
 
     def fly(legs):
         warnings: list[str] = []
-        state = _Campaign(sc, fl, engine, veh, warnings, earliest)
-        state.node_plan = plane and circular and math.sin(mean0.i_rad) >= EQUATORIAL_I_RAD
+        state = _Campaign(sc, fl, engine, veh, warnings, earliest, node_plan)
         burns = state.fly_legs(legs, _Snapshot(y0, sc.epoch_s, mean0, samples0), circular)
         return state, warnings, burns
 
+    legs = design()
     state, warnings, burns = fly(legs)
     if target.kind in ("circular", "apsides") and len(legs) == 1 and not state.ran_dry:
         # A leg dropped from the design as impulsively needless may be needed after all: the
         # finite burn of the other moves its own apsis.  Fly both and keep the better.
-        full = design_legs(mean0.periapsis_radius_m, mean0.apoapsis_radius_m, circular, target,
-                           body.mu_m3_s2, keep_all=True)
+        full = design(keep_all=True)
         miss = _target_miss(target, state.final_mean)
         if len(full) == 2 and miss > TARGET_TOLERANCE_M:
-            if plane:
-                full = share_plane_change(full, mean0.periapsis_radius_m, mean0.apoapsis_radius_m, circular,
-                                          mean0.i_rad, target.i_rad, body.mu_m3_s2)
             state2, warnings2, burns2 = fly(full)
             added = [b for b in burns2 if full[b.leg] not in legs]
             if (not state2.ran_dry and _target_miss(target, state2.final_mean) < miss
@@ -651,8 +654,7 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     margin = after - veh.unusable_kg - veh.reserve_kg
     feasible = used <= usable_now + 1e-9 and not state.ran_dry
     if not feasible:
-        need_dv = (plane_change_design_dv(legs, mean0.periapsis_radius_m, mean0.apoapsis_radius_m,
-                                          body.mu_m3_s2) if plane else _design_dv(legs, mean0, body.mu_m3_s2))
+        need_dv = design_dv(legs, rp0, ra0, mu)
         need_kg = m0 * -math.expm1(-need_dv / engine.c_m_s)
         warnings.append(f"infeasible: the target needs about {need_dv:.1f} m/s, i.e. {need_kg:.3f} kg "
                         f"of propellant (impulsive estimate), but only {usable_now:.3f} kg is usable")
@@ -687,25 +689,16 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     return plan
 
 
-def _design_dv(legs, mean0: MeanOrbit, mu: float) -> float:
-    """Total impulsive delta-v (m/s) of the design legs from the start orbit."""
-    apsides = (mean0.periapsis_radius_m, mean0.apoapsis_radius_m)
-    total = 0.0
-    for leg in legs:
-        burn_r, other_r = _leg_radii(leg, apsides)
-        total += abs(apsis_burn_dv(burn_r, other_r, leg.goal_radius_m, mu))
-        apsides = tuple(sorted((burn_r, leg.goal_radius_m)))
-    return total
+def _apsis_misses(target: Target, final: MeanOrbit):
+    """(name, target radius, final mean radius) of each apsis the target names, m."""
+    return [(name, want, got) for name, want, got in (
+        ("periapsis", target.periapsis_radius_m, final.periapsis_radius_m),
+        ("apoapsis", target.apoapsis_radius_m, final.apoapsis_radius_m)) if want is not None]
 
 
 def _target_miss(target: Target, final: MeanOrbit) -> float:
     """Largest distance (m) of a final mean apsis from its target radius."""
-    miss = 0.0
-    if target.periapsis_radius_m is not None:
-        miss = max(miss, abs(final.periapsis_radius_m - target.periapsis_radius_m))
-    if target.apoapsis_radius_m is not None:
-        miss = max(miss, abs(final.apoapsis_radius_m - target.apoapsis_radius_m))
-    return miss
+    return max((abs(got - want) for _, want, got in _apsis_misses(target, final)), default=0.0)
 
 
 def _note_final_miss(target: Target, final: MeanOrbit, radius_m: float, warnings: list) -> None:
@@ -714,11 +707,8 @@ def _note_final_miss(target: Target, final: MeanOrbit, radius_m: float, warnings
     The legs aim at radii along their burn lines; an eccentricity left across those lines (e.g.
     by the J2 drift of the apsides between burns) is invisible there and shows here.
     """
-    misses = []
-    for name, want, got in (("periapsis", target.periapsis_radius_m, final.periapsis_radius_m),
-                            ("apoapsis", target.apoapsis_radius_m, final.apoapsis_radius_m)):
-        if want is not None and abs(got - want) > TARGET_TOLERANCE_M:
-            misses.append(f"{name} {(got - radius_m) / 1e3:.3f} km against {(want - radius_m) / 1e3:.3f} km")
+    misses = [f"{name} {(got - radius_m) / 1e3:.3f} km against {(want - radius_m) / 1e3:.3f} km"
+              for name, want, got in _apsis_misses(target, final) if abs(got - want) > TARGET_TOLERANCE_M]
     if misses:
         warnings.append("final orbit misses the target: " + ", ".join(misses)
                         + f" (tolerance {TARGET_TOLERANCE_M:.0f} m)")
@@ -758,7 +748,7 @@ class _Snapshot:
 class _Campaign:
     """Flies the legs one burn at a time (scratch state of one planning run)."""
 
-    def __init__(self, sc: Scenario, fl: _Flight, engine: _Engine, veh, warnings, earliest):
+    def __init__(self, sc: Scenario, fl: _Flight, engine: _Engine, veh, warnings, earliest, node_plan=False):
         self.sc = sc
         self.fl = fl
         self.engine = engine
@@ -776,7 +766,7 @@ class _Campaign:
         # plane change from an inclined (near-)circular orbit: the first leg's burns are centred
         # on the first node after the lead time (the transfer's apsides then lie on the nodes and
         # later legs burn at apsides as usual)
-        self.node_plan = False
+        self.node_plan = node_plan
         self.first_node: str | None = None
         # a (nearly) circular target: the last burn's centre time is solved too (see _fly_last)
         t = sc.target
