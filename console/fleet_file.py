@@ -50,7 +50,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .files import write_text_file
+from .files import read_file_bytes, write_text_file
 
 #: Largest fleet file read, bytes.
 MAX_FLEET_BYTES = 200_000_000
@@ -181,19 +181,8 @@ class _Rows:
 
 
 def _read_rows(path: Path) -> _Rows:
-    try:
-        if path.is_dir():
-            raise ValueError(f"{path}: is a folder, not a fleet file")
-        size = path.stat().st_size
-        if size > MAX_FLEET_BYTES:
-            raise ValueError(f"{path}: fleet file is {size} bytes, larger than the {MAX_FLEET_BYTES} allowed")
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise ValueError(f"{path}: fleet file not found") from None
-    except PermissionError:
-        raise ValueError(f"{path}: fleet file cannot be read (permission denied)") from None
-    except OSError as exc:
-        raise ValueError(f"{path}: fleet file cannot be read ({exc.strerror or exc})") from None
+    # the shared reader refuses pipes and devices (which would block or never end) and big files
+    raw = read_file_bytes(path, "fleet file", MAX_FLEET_BYTES)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:

@@ -667,7 +667,8 @@ def plan_campaign(scenario: Scenario, *, thrust_factor: float = 1.0, mass_kg: fl
     for b in burns:
         if b.ignition_s < earliest - 1e-6:
             warnings.append(f"burn {b.index} ignites before the lead time allows")
-    if len(legs) == 1 and burns:
+    if target.kind in ("apoapsis", "periapsis") and len(legs) == 1 and burns:
+        # (a two-apsis target reports its misses below; the advice to use one would be wrong)
         _note_other_apsis(legs[0], mean0, final_mean, warnings)
     if burns and not state.ran_dry:
         _note_final_miss(target, final_mean, body.radius_m, warnings)

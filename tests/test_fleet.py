@@ -624,3 +624,18 @@ def test_cli_end_to_end(tmp_path):
     assert "Traceback" not in err and not (tmp_path / "bad.queue.csv").exists()
     rc, _, err = run_cli("fleet", "missing.csv", cwd=tmp_path)
     assert rc == 2 and "not found" in err
+
+
+def test_a_pipe_named_as_the_fleet_file_is_refused_at_once(tmp_path):
+    # the shared file reader (console/files.py) refuses a named pipe instead of blocking on it
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    fifo = tmp_path / "fleet.csv"
+    os.mkfifo(fifo)
+    exe = str(Path(sys.executable).parent / "burndesk")
+    proc = subprocess.run([exe, "fleet", str(fifo)], capture_output=True, text=True, timeout=60)
+    assert proc.returncode == 2
+    assert "not a regular file" in proc.stderr and "Traceback" not in proc.stderr
