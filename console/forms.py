@@ -311,6 +311,3 @@ def target_text(target, body) -> tuple[str, dict]:
         out["i"] = f"{math.degrees(target.i_rad):.4f} deg"
     return kind, out
 
-
-def utc_text(t_s: float) -> str:
-    return format_utc(t_s)

@@ -16,7 +16,7 @@ from pathlib import Path
 from mechanics.bodies import Body
 from mechanics.vehicle import Thruster, Tolerances, Vehicle
 
-from .files import MAX_FILE_BYTES, read_file_bytes
+from .files import read_file_bytes
 from .units import parse_value
 
 #: Most dots in one dotted TOML key or table header.  tomllib's time grows faster than the

@@ -343,11 +343,6 @@ def parse_options(table, body: Body, where: str = "options") -> tuple[str, PlanO
     return model, PlanOptions(attitude=attitude, split=split, lead_time_s=lead)
 
 
-def scenario_from_doc(doc: dict, base_dir: Path, where: str) -> Scenario:
-    """Build a :class:`Scenario` from a parsed scenario TOML document."""
-    return scenario_and_state(doc, base_dir, where)[0]
-
-
 def scenario_and_state(doc: dict, base_dir: Path, where: str) -> tuple[Scenario, StateInput]:
     """(:class:`Scenario`, the :class:`StateInput` it was built from) of a scenario document.
 

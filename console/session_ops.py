@@ -143,9 +143,6 @@ class Session:
 
         return self.append(TargetSet(asdict(target)))
 
-    def change_vehicle(self, vehicle) -> int:
-        return self.append(VehicleChanged(vehicle.to_dict()))
-
     def entries(self):
         """(seq, written UTC, kind, summary, status) of every entry, for the log."""
         gone = self.state.retracted

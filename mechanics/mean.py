@@ -34,10 +34,9 @@ import numpy as np
 
 from .bodies import Body, check_model
 from .constants import CIRCULAR_E, EQUATORIAL_I_RAD
-from .elements import Elements, cross, rv_to_elements
+from .elements import Elements, rv_to_elements
 from .j2 import secular_rates
-from .kepler import (TWO_PI, mean_motion, mean_to_true, true_to_eccentric, true_to_mean, wrap_2pi,
-                     wrap_pi)
+from .kepler import TWO_PI, mean_motion, mean_to_true, true_to_eccentric, true_to_mean, wrap_2pi
 
 #: Samples per revolution used for the time averages.
 MEAN_SAMPLES = 64

@@ -528,10 +528,6 @@ class _Engine:
     def duration_for_dv(self, m0: float, dv: float) -> float:
         return m0 / self.mdot_kg_s * -math.expm1(-abs(dv) / self.c_m_s)
 
-    def dv_for_duration(self, m0: float, duration: float) -> float:
-        m1 = m0 - self.mdot_kg_s * duration
-        return self.c_m_s * math.log(m0 / m1)
-
     def pre_apsis_time(self, m0: float, duration: float) -> float:
         """Half-delta-v rule: time from ignition until half the burn's delta-v is delivered."""
         return m0 / self.mdot_kg_s * (1.0 - math.sqrt(max(m0 - self.mdot_kg_s * duration, 1e-300) / m0))

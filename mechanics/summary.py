@@ -13,7 +13,7 @@ import numpy as np
 
 from .bodies import Body, check_model
 from .elements import Elements, orbit_kind, rv_to_elements
-from .kepler import mean_motion, period, solve_kepler_hyperbolic, true_to_mean
+from .kepler import mean_motion, period, true_to_mean
 from .mean import MeanOrbit, mean_orbit
 
 

@@ -455,7 +455,7 @@ async def test_recording_a_weak_burn_shows_alarm_and_replans_with_the_calibratio
         async with app.run_test(size=(100, 30)) as pilot:
             await settle(pilot)
             rated = app.current_view.scenario.vehicle.thrust_n
-            b1 = await record_weak_burn(pilot, app, 0.94)
+            await record_weak_burn(pilot, app, 0.94)
             assert app.screen is app.screen_stack[0]  # the form closed
             ev = events(session)[-1]
             assert isinstance(ev, BurnRecorded) and ev.burn == 1

@@ -419,7 +419,7 @@ HEADER = ("id,epoch_utc,vehicle,periapsis_alt_km,apoapsis_alt_km,i_deg,raan_deg,
 ROWS = [
     f"wren-a,{EPOCH},wren3,380,402,97.6,131,48,300,circular,560,,,,2700",
     f"wren-b,{EPOCH},wren3,500,500,97.6,131,0,10,apsides,,450,700,,0",
-    f"heron-1,2027-03-15T00:00:00Z,heron,250,35786,7,20,178,0,periapsis,35786,,,,3600",
+    "heron-1,2027-03-15T00:00:00Z,heron,250,35786,7,20,178,0,periapsis,35786,,,,3600",
 ]
 NOLIMIT = """\
 name = "NOLIMIT"
@@ -595,7 +595,7 @@ def run_cli(*args, cwd):
 
 
 def test_cli_end_to_end(tmp_path):
-    path = write(tmp_path, ROWS)
+    write(tmp_path, ROWS)
     rc, out, err = run_cli("fleet", "fleet.csv", cwd=tmp_path)
     assert rc == 0, err
     assert "3 spacecraft" in out and "Traceback" not in err

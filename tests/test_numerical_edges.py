@@ -350,7 +350,7 @@ def test_orbits_at_or_inside_the_surface_are_refused(tmp_path, state, field):
 def test_million_kilometre_orbit(tmp_path):
     veh = write_vehicle(tmp_path, thrust="2 kN", isp="320 s")
     a = 1e9
-    sc = load(tmp_path, f'a = "1e6 km"\ne = 0\ni = 10\nraan = 0\nargp = 0\nnu = 0',
+    sc = load(tmp_path, 'a = "1e6 km"\ne = 0\ni = 10\nraan = 0\nargp = 0\nnu = 0',
               f'kind = "circular"\naltitude = "{(1.1e9 - R_E) / 1e3!r} km"', vehicle=veh)
     s = summarize(sc.r_m, sc.v_m_s, sc.epoch_s, sc.body, "two-body")
     assert s.period_s == pytest.approx(kepler_period(a, MU_E), rel=1e-12)

@@ -27,7 +27,8 @@ from pathlib import Path
 
 import pytest
 
-from console.profiles import MAX_FILE_BYTES, load_body
+from console.files import MAX_FILE_BYTES
+from console.profiles import load_body
 from console.scenario_file import load_scenario, load_state_file
 from console.session_ops import Session
 from mechanics.session.journal import Journal
@@ -127,8 +128,8 @@ def test_code_in_free_text_is_only_text(work):
 
 
 def test_code_in_a_body_or_vehicle_profile_is_a_bad_value(work):
-    (work / "body.toml").write_text(f'name = "x"\nmu = {{ value = "__import__(\'os\')", source = "x" }}\n'
-                                    f'radius = {{ value = "6378 km", source = "x" }}\n')
+    (work / "body.toml").write_text('name = "x"\nmu = { value = "__import__(\'os\')", source = "x" }\n'
+                                    'radius = { value = "6378 km", source = "x" }\n')
     (work / "b.toml").write_text(SCENARIO.replace('body = "earth"', 'body = "body.toml"'))
     refused(cli("orbit", "b.toml", cwd=work), "body.toml: mu")
     (work / "craft.toml").write_text(VEHICLE.replace('thrust = "1 N"', 'thrust = "1 N; touch PWNED"'))

@@ -26,7 +26,7 @@ import bisect
 import json
 import math
 import threading
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 
