@@ -23,17 +23,20 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
 
-CHILD_BURNDESK = textwrap.dedent('''
-    import sys, time
-    from console.app import BurndeskApp
-    from console.session_ops import Session
-
+# the resident set size of the child, read the same way in both children
+RSS_MB = textwrap.dedent('''
     def rss_mb():
         with open("/proc/self/status") as fh:
             for line in fh:
                 if line.startswith("VmRSS:"):
                     return int(line.split()[1]) / 1024.0
         return float("nan")
+''')
+
+CHILD_BURNDESK = RSS_MB + textwrap.dedent('''
+    import sys, time
+    from console.app import BurndeskApp
+    from console.session_ops import Session
 
     session = Session.open(sys.argv[1])
     app = BurndeskApp(session)
@@ -51,16 +54,9 @@ CHILD_BURNDESK = textwrap.dedent('''
     session.close()
 ''')
 
-CHILD_EMPTY = textwrap.dedent('''
+CHILD_EMPTY = RSS_MB + textwrap.dedent('''
     from textual.app import App
     from textual.widgets import Static
-
-    def rss_mb():
-        with open("/proc/self/status") as fh:
-            for line in fh:
-                if line.startswith("VmRSS:"):
-                    return int(line.split()[1]) / 1024.0
-        return float("nan")
 
     class Empty(App):
         def compose(self):
